@@ -1,0 +1,66 @@
+"""Typed result objects: every result carries its model, parameters, source key and flags.
+
+Results are dataclasses; :func:`to_jsonable` turns any of them (numpy values included) into plain JSON
+types, so the assessment, the record and the app all present the same numbers.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Flag:
+    """Something the reader must know about a result.
+
+    ``code`` is one of a small set of plain words: ``extrapolated`` (a model used outside its fitted
+    range), ``missing-data`` (a quantity could not be computed for lack of data), ``default-used``
+    (the planner chose a documented default because the protocol was silent), ``indicative`` (a model
+    whose parameters are rough), ``refused`` (a quantity the planner will not compute here).
+    """
+
+    code: str
+    message: str
+    source: str | None = None
+
+
+@dataclass
+class Result:
+    """Base of every section result: a model name, its parameters, a source key and flags."""
+
+    model: str = ""
+    source: str = ""
+    parameters: dict[str, Any] = field(default_factory=dict)
+    flags: list[Flag] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_jsonable(self)
+
+
+def to_jsonable(obj: Any) -> Any:
+    """Convert dataclasses, numpy scalars/arrays, tuples and mappings to JSON types.
+
+    Non-finite floats become ``None`` (JSON has no NaN); callers that need to say *why* a number is
+    missing add a flag.
+    """
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if not f.name.startswith("_")}
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [to_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.integer, int)):
+        return int(obj)
+    if isinstance(obj, (np.floating, float)):
+        x = float(obj)
+        return x if math.isfinite(x) else None
+    return obj
