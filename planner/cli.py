@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 import traceback
 from collections.abc import Sequence
@@ -34,6 +35,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true",
                    help="print one JSON object per file (a JSON array for several files)")
     p.set_defaults(handler=_assess)
+
+    c = sub.add_parser("calibrate", help="fit the nucleation rate to your own freezing assay (CSV)",
+                       description="Fit the heterogeneous nucleation rate to a freezing-assay CSV (format: "
+                                   "docs/calibration-csv.md) and save a calibration file a protocol can name "
+                                   "under nucleation.calibration. An existing file is never overwritten.")
+    c.add_argument("assay", metavar="ASSAY.csv", help="the freezing-assay CSV")
+    c.add_argument("--out", required=True, metavar="FILE.yaml", help="calibration file to write (must not exist)")
+    c.set_defaults(handler=_calibrate)
 
     try:
         from planner import cli_records
@@ -71,6 +80,30 @@ def _assess(args: argparse.Namespace) -> int:
     else:
         for path, result in zip(args.files, results, strict=True):
             print(summary_text(path, result.to_dict()))
+    return EXIT_OK
+
+
+def _calibrate(args: argparse.Namespace) -> int:
+    from planner.calibration import fit_assay, read_assay, save_calibration
+
+    cal = fit_assay(read_assay(args.assay))
+    path = save_calibration(cal, args.out)
+    lo, hi = cal.measured_supercooling
+    print(f"{cal.samples} samples, {cal.frozen} frozen; measured supercooling {lo:.2f} to {hi:.2f} K")
+    if cal.kind == "upper-bound":
+        print("no sample froze: the calibration is a one-sided 95 % upper bound on the rate, not an estimate")
+    else:
+        low, high = cal.log_rate_interval(cal.reference_supercooling)
+        print(f"rate per volume at {cal.reference_supercooling:.2f} K supercooling: "
+              f"{float(cal.rate(cal.reference_supercooling)):.3g} per m3 per s "
+              f"(90 % interval {math.exp(low):.3g} to {math.exp(high):.3g})")
+    print("observed vs predicted fraction frozen:")
+    for row in cal.goodness_of_fit:
+        print(f"  {row['kind']:4s} {row['condition']}: n={row['samples']}, observed {row['observed']:.2f}, "
+              f"predicted {row['predicted']:.2f}")
+    for flag in cal.flags:
+        print(f"  [{flag.code}] {flag.message}")
+    print(f"saved {path} (name it in a protocol as nucleation: {{calibration: {path.name}}})")
     return EXIT_OK
 
 

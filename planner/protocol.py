@@ -221,7 +221,7 @@ class _Section:
                     did_you_mean(str(key), allowed),
                 )
         for key in required:
-            if key not in node:
+            if node.get(key) is None:
                 raise InputError(f"{path}.{key}" if path else key, "missing", "a value is required")
         self.node = node
         self.path = path

@@ -48,7 +48,8 @@ def test_rigid_demo_in_si_units():
     ramp, hold, warm = p.schedule.steps
     assert ramp.rate == pytest.approx(0.5 / 60) and hold.duration == pytest.approx(48 * 3600)
     assert warm.target_temperature == pytest.approx(277.15)
-    assert p.environment.defaulted and p.nucleation.defaulted
+    assert p.environment.preset == "stirred-bath" and not p.environment.defaulted
+    assert p.nucleation.defaulted
     assert p.entered["solution"]["cryoprotectants"][0] == {"agent": "glycerol", "mass_percent": 10.0}
 
 
@@ -70,7 +71,7 @@ def test_round_trip_through_yaml_keeps_everything():
         ("volume_ml: 2.0", "volume_ml: two", "sample.volume_ml", "a number"),
         ("geometry: cylinder ", "geometry: cylindre ", "sample.geometry", "did you mean 'cylinder'"),
         ("kind: rigid ", "kind: sealed ", "container.kind", "one of: rigid, open"),
-        ("outer_diameter_mm: 45.0", "outer_diameter_mm: 20.0", "container.outer_diameter_mm", "larger than"),
+        ("outer_diameter_mm: 55.0", "outer_diameter_mm: 20.0", "container.outer_diameter_mm", "larger than"),
         ("cavity_ml: 20.0", "cavity_ml: 1.0", "container.cavity_ml", "at least the sample volume"),
         ("trapped_gas_ml: 0.0", "trapped_gas_ml: -0.5", "container.trapped_gas_ml", "from 0"),
         ("rate_c_per_min: 0.5", "rate_c_per_min: 0.0", "schedule.steps[0].rate_c_per_min", "above 0"),

@@ -1,0 +1,215 @@
+"""Benchmarks of the planner in the browser (voila + Debian's chromium). Prints figures; asserts nothing.
+
+1. cold start: voila process start → the plan page's first interactive step (the summary strip shows the
+   overall state), without a kernel pool; and page loads with a pre-started pool;
+2. round trip of one input change → updated summary strip, over 20 changes (new values each time, so
+   every change is a full assessment), and over 20 changes flipping between two values (answered from
+   the app's cache of assessed drafts);
+3. memory of one kernel after the full demo (every step visited);
+4. ten viewers opening the app at once: time until all ten are interactive, and the machine's memory.
+
+Run: ``.venv/bin/python benchmarks/bench_app.py [--quick]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import signal
+import statistics
+import subprocess
+import tempfile
+import time
+import urllib.request
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+CHROMIUM = "/usr/bin/chromium"
+ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+        "--disable-component-update", "--disable-quic", "--no-first-run", "--disable-sync"]
+
+
+def start(pool: int = 0):
+    from planner.serve import ServeConfig, free_port, voila_command, voila_environment
+
+    folder = Path(tempfile.mkdtemp(prefix="coldmargin-bench-"))
+    cfg = ServeConfig(token="bench", pool=pool, protocol=ROOT / "protocols" / "supercooled-open-vial.yaml",
+                      timeout_s=300).check()
+    port = free_port(0)
+    t0 = time.monotonic()
+    proc = subprocess.Popen(voila_command(cfg, port), env=voila_environment(cfg, folder / "jupyter"),
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=folder, start_new_session=True)
+    while True:
+        try:
+            urllib.request.urlopen(f"http://127.0.0.1:{port}/voila/static/voila.js?token=bench", timeout=2)
+            break
+        except OSError:
+            if proc.poll() is not None:
+                raise RuntimeError("voila exited") from None
+            time.sleep(0.1)
+    return proc, port, folder, t0, time.monotonic() - t0
+
+
+def stop(proc, folder) -> None:
+    os.killpg(proc.pid, signal.SIGTERM)
+    try:
+        proc.wait(timeout=30)
+    except subprocess.TimeoutExpired:
+        os.killpg(proc.pid, signal.SIGKILL)
+    shutil.rmtree(folder, ignore_errors=True)
+
+
+def url(port: int, notebook: str = "plan") -> str:
+    return f"http://127.0.0.1:{port}/voila/render/{notebook}.ipynb?token=bench"
+
+
+def interactive(page, timeout_ms: int = 300_000) -> None:
+    """The first step's inputs are on the page (a person can type)."""
+    page.get_by_label("Volume (mL)", exact=True).wait_for(timeout=timeout_ms)
+
+
+def assessed(page, timeout_ms: int = 300_000) -> None:
+    """The first assessment is in the summary strip."""
+    page.locator(".cm-summary .cm-verdict").wait_for(timeout=timeout_ms)
+
+
+def kernel_pids(voila_pid: int) -> list[int]:
+    out = []
+    for d in Path("/proc").iterdir():
+        if not d.name.isdigit():
+            continue
+        try:
+            cmd = (d / "cmdline").read_bytes().replace(b"\0", b" ")
+            stat = (d / "stat").read_text().split()
+        except OSError:
+            continue
+        if b"ipykernel" in cmd and int(stat[3]) == voila_pid:
+            out.append(int(d.name))
+    return out
+
+
+def rss_mb(pid: int) -> float:
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith("VmRSS:"):
+            return int(line.split()[1]) / 1024
+    return float("nan")
+
+
+def available_mb() -> float:
+    for line in Path("/proc/meminfo").read_text().splitlines():
+        if line.startswith("MemAvailable:"):
+            return int(line.split()[1]) / 1024
+    return float("nan")
+
+
+def change_and_wait(page, box, value: str) -> float:
+    before = page.locator(".cm-summary").inner_text()
+    t = time.perf_counter()
+    box.fill(value)
+    box.press("Enter")
+    page.wait_for_function(
+        "(old) => { const s = document.querySelector('.cm-summary');"
+        " return s && s.innerText !== old && !s.innerText.includes('Working'); }", arg=before, timeout=120_000)
+    return time.perf_counter() - t
+
+
+def main() -> None:
+    from playwright.sync_api import sync_playwright
+
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--quick", action="store_true", help="fewer repetitions")
+    args = parser.parse_args()
+    cold_runs = 1 if args.quick else 3
+    changes = 8 if args.quick else 20
+    viewers = 10
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
+
+        # 1. cold start, no pool
+        cold = []
+        for _ in range(cold_runs):
+            proc, port, folder, t0, up = start(pool=0)
+            page = browser.new_page(viewport={"width": 1300, "height": 1400})
+            page.goto(url(port))
+            interactive(page)
+            cold.append(time.monotonic() - t0)
+            assessed(page)
+            print(f"cold start: server answering {up:.1f} s, first interactive step {cold[-1]:.1f} s, "
+                  f"first assessment in the strip {time.monotonic() - t0:.1f} s")
+            page.close()
+            if _ < cold_runs - 1:
+                stop(proc, folder)
+
+        # 2. round trips on the last cold server, 3. memory of its kernel after the full demo
+        page = browser.new_page(viewport={"width": 1300, "height": 1400})
+        t = time.monotonic()
+        page.goto(url(port))
+        interactive(page)
+        print(f"second page load on the same server (new kernel): {time.monotonic() - t:.1f} s")
+        assessed(page)
+        page.get_by_role("button", name="Solution", exact=True).click()
+        box = page.get_by_label("Concentration (% w/w)", exact=True)
+        fresh = [change_and_wait(page, box, f"{5 + 0.5 * (i + 1):.1f}") for i in range(changes)]
+        cached = [change_and_wait(page, box, "6.0" if i % 2 else "7.0") for i in range(changes)]
+        for name in ("Sample", "Container", "Solution", "Schedule", "Cells", "Review", "Sign & archive"):
+            page.get_by_role("button", name=name, exact=True).click()
+            page.locator(".cm-body h3", has_text=name).first.wait_for()
+        time.sleep(2)
+        pids = kernel_pids(proc.pid)
+        print(f"round trip, new value each time: median {statistics.median(fresh) * 1000:.0f} ms "
+              f"(min {min(fresh) * 1000:.0f}, max {max(fresh) * 1000:.0f}) over {changes}")
+        print(f"round trip, flipping between two values (cached): median {statistics.median(cached) * 1000:.0f} ms "
+              f"(min {min(cached) * 1000:.0f}, max {max(cached) * 1000:.0f}) over {changes}")
+        print("kernel memory after the full demo: " + ", ".join(f"{rss_mb(p):.0f} MB" for p in pids)
+              + f" ({len(pids)} kernel(s) alive on this server)")
+        page.close()
+        stop(proc, folder)
+        print(f"cold start median: {statistics.median(cold):.1f} s over {len(cold)}")
+
+        # pre-started pool: page loads
+        proc, port, folder, t0, up = start(pool=2)
+        time.sleep(5)
+        page = browser.new_page()
+        page.goto(url(port))
+        interactive(page)
+        first = time.monotonic() - t0
+        page.close()
+        time.sleep(3)
+        page = browser.new_page()
+        t = time.monotonic()
+        page.goto(url(port))
+        interactive(page)
+        print(f"pool of 2: first page interactive {first:.1f} s after start; a later page load {time.monotonic() - t:.1f} s")
+        page.close()
+        stop(proc, folder)
+
+        # 4. ten viewers at once (no pool)
+        proc, port, folder, t0, up = start(pool=0)
+        before = available_mb()
+        contexts = [browser.new_context() for _ in range(viewers)]
+        pages = [c.new_page() for c in contexts]
+        t = time.monotonic()
+        for p in pages:
+            p.goto(url(port), wait_until="commit")
+        done = []
+        for p in pages:
+            interactive(p, timeout_ms=600_000)
+            done.append(time.monotonic() - t)
+        for p in pages:
+            assessed(p, timeout_ms=600_000)
+        all_assessed = time.monotonic() - t
+        pids = kernel_pids(proc.pid)
+        rss = [rss_mb(p) for p in pids]
+        print(f"{viewers} viewers at once: all interactive after {max(done):.1f} s "
+              f"(first {min(done):.1f} s), all assessed after {all_assessed:.1f} s; {len(pids)} kernels, {sum(rss):.0f} MB in all "
+              f"({statistics.median(rss):.0f} MB median); machine memory available {before:.0f} MB before, "
+              f"{available_mb():.0f} MB with ten viewers")
+        for c in contexts:
+            c.close()
+        stop(proc, folder)
+        browser.close()
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,166 @@
+"""The planner in a real browser (Debian's chromium, driven by Playwright) against voila on loopback.
+
+Each step of the demo is screenshotted under test-output/screenshots/. Every request the page makes must
+go to the app's own server: the page works offline.
+"""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from tests.browser.conftest import PASSPHRASE, SIGNER, shot
+
+pytestmark = pytest.mark.browser
+
+STEPS = ["Sample", "Container", "Solution", "Schedule", "Cells", "Review", "Sign & archive"]
+
+
+@pytest.fixture(scope="module")
+def plan(browser, server):
+    """One plan page (one kernel) for the plan tests; each test starts from the demo again."""
+    context = browser.new_context(viewport={"width": 1300, "height": 2400})
+    p = context.new_page()
+    p.set_default_timeout(60_000)
+    p.requests_seen = []
+    p.on("request", lambda r: p.requests_seen.append(r.url))
+    p.goto(server.url("plan"))
+    p.locator(".cm-app").wait_for(timeout=180_000)
+    p.locator(".cm-summary .cm-verdict").wait_for(timeout=180_000)
+    yield p
+    context.close()
+
+
+def _open_plan(page, server):
+    """Start from the demo again (the Open button reloads it) and show the first step."""
+    before = _strip(page)
+    page.get_by_label("Start from", exact=True).select_option("demo: supercooled-open-vial")
+    page.get_by_role("button", name="Open", exact=True).click()
+    page.get_by_role("button", name="Sample", exact=True).click()
+    page.locator(".cm-body h3", has_text="Sample").wait_for()
+    page.locator(".cm-summary .cm-verdict").wait_for()
+    page.locator(".cm-summary .cm-stale-note").wait_for(state="detached")
+    page.locator(".cm-summary .cm-working-note").wait_for(state="detached")
+    return before
+
+
+def _strip(page) -> str:
+    return page.locator(".cm-summary").inner_text()
+
+
+def _only_local(page, server):
+    outside = [u for u in page.requests_seen
+               if not u.startswith(f"http://127.0.0.1:{server.port}/") and not u.startswith(("data:", "blob:", "ws://127.0.0.1"))]
+    assert outside == [], f"the page asked outside the app: {outside[:5]}"
+
+
+def test_step_through_the_demo_end_to_end(plan, server):
+    _open_plan(plan, server)
+    assert "Supercooled hold of red cell suspension" in plan.get_by_label("Protocol title", exact=True).input_value()
+    for i, title in enumerate(STEPS):
+        if i:
+            plan.get_by_role("button", name="Next", exact=True).click()
+        plan.locator(".cm-body h3", has_text=title.replace("&", "&")).first.wait_for()
+        if title in ("Sample", "Solution", "Schedule"):
+            plan.locator(".cm-body .cm-chart svg").first.wait_for(timeout=60_000)  # drawn offline, in the plan
+        shot(plan, f"plan-{i + 1}-{title.split()[0].lower()}")
+    assert plan.locator(".cm-sign-cautions .cm-caution").count() >= 2  # cautions shown before signing
+    assert "Planning support only" in plan.locator(".cm-planning-box").inner_text()
+    plan.get_by_role("button", name="Review", exact=True).click()
+    plan.locator(".cm-review-margins table").wait_for()
+    text = plan.locator(".cm-review-margins").inner_text()
+    assert re.search(r"fine|watch|do not proceed", text)
+    _only_local(plan, server)
+
+
+def test_changing_the_concentration_moves_the_freezing_point_and_margins(plan, server):
+    _open_plan(plan, server)
+    plan.get_by_role("button", name="Solution", exact=True).click()
+    numbers = plan.locator(".cm-step-solution .cm-numbers")
+    numbers.locator("td").first.wait_for()
+    before_numbers, before_strip = numbers.inner_text(), _strip(plan)
+    box = plan.get_by_label("Concentration (% w/w)", exact=True)
+    box.fill("15")
+    box.press("Enter")
+    plan.wait_for_function(
+        "(old) => { const s = document.querySelector('.cm-summary'); return s && s.innerText !== old"
+        " && !s.innerText.includes('Working'); }", arg=before_strip, timeout=60_000)
+    plan.wait_for_function(
+        "(old) => document.querySelector('.cm-step-solution .cm-numbers').innerText !== old", arg=before_numbers)
+    after_numbers = numbers.inner_text()
+    fp_before = _number_after(before_numbers, "Freezing point")
+    fp_after = _number_after(after_numbers, "Freezing point")
+    assert fp_after < fp_before  # more trehalose, lower liquidus
+    assert _strip(plan) != before_strip
+    shot(plan, "plan-solution-15-percent")
+
+
+def _number_after(text: str, label: str) -> float:
+    for line in text.splitlines():
+        if line.lower().startswith(label.lower()):
+            return float(line.split("\t")[-1].split()[0].replace("\u2212", "-"))
+    raise AssertionError(f"{label!r} not in {text!r}")
+
+
+def test_a_bad_value_shows_the_fields_error_and_keeps_the_result_stale(plan, server):
+    _open_plan(plan, server)
+    box = plan.get_by_label("Volume (mL)", exact=True)
+    box.fill("-2")
+    box.press("Enter")
+    error = plan.locator(".cm-step-sample .cm-field-error", has_text="sample.volume_ml")
+    error.wait_for()
+    assert "-2" in error.inner_text() and "5000" in error.inner_text()
+    plan.locator(".cm-summary .cm-stale-note").wait_for()
+    assert "fine" in _strip(plan) or "watch" in _strip(plan) or "do not proceed" in _strip(plan)
+    shot(plan, "plan-bad-volume")
+    box.fill("1")
+    box.press("Enter")
+    plan.locator(".cm-summary .cm-stale-note").wait_for(state="detached")
+
+
+def test_sign_into_an_archive_and_verify_it_from_the_archive_notebook(plan, server, page):
+    _open_plan(plan, server)
+    plan.get_by_role("button", name="Sign & archive", exact=True).click()
+    plan.locator(".cm-sign-cautions .cm-caution").first.wait_for()
+    plan.get_by_label("I have read the cautions above").check()
+    plan.get_by_label("Printed name").fill(SIGNER)
+    assert plan.get_by_label("Key file (on this computer)").input_value() == str(server.key)
+    plan.get_by_label("Passphrase").fill(PASSPHRASE)
+    assert plan.get_by_label("Archive file").input_value() == str(server.archive)
+    plan.get_by_label("Register my key in this archive (first use)").check()
+    plan.get_by_role("button", name="Sign and archive").click()
+    record_hash = plan.locator(".cm-sign-result .cm-record-hash")
+    record_hash.wait_for(timeout=60_000)
+    digest = record_hash.inner_text()
+    assert re.fullmatch(r"sha256:[0-9a-f]{64}", digest)
+    assert plan.get_by_label("Passphrase").input_value() == ""  # not kept in the plan
+    shot(plan, "plan-7-signed")
+
+    page.goto(server.url("archive"))
+    page.locator(".cm-archive").wait_for(timeout=120_000)
+    page.locator(".cm-archive-head").wait_for()
+    page.get_by_role("button", name="Open and verify").click()
+    page.locator(".cm-archive-result .cm-verified").wait_for(timeout=60_000)
+    result = page.locator(".cm-archive-result").inner_text()
+    assert digest in result and SIGNER in result and "valid" in result
+    page.frame_locator(".cm-record-frame").locator("body").wait_for()
+    shot(page, "archive-verified")
+    _only_local(page, server)
+
+
+def test_compare_two_scenarios(page, server):
+    page.goto(server.url("compare", "scenario=supercooled-open-vial&scenario=rigid-chamber-hold"))
+    page.locator(".cm-compare").wait_for(timeout=120_000)
+    table = page.locator(".cm-compare-margins")
+    table.wait_for()
+    header = table.locator("tr").first.inner_text()
+    assert "A: supercooled-open-vial" in header and "B: rigid-chamber-hold" in header
+    page.locator(".cm-compare-map svg").wait_for(timeout=90_000)
+    charts = page.locator(".cm-compare-charts .cm-chart")
+    charts.first.wait_for(timeout=90_000)
+    assert page.locator(".cm-compare-charts svg").count() == 1, charts.first.inner_text()
+    page.get_by_role("button", name="Large type").click()
+    page.locator(".cm-compare.cm-large").wait_for()
+    shot(page, "compare-two-scenarios")
+    _only_local(page, server)

@@ -1,0 +1,176 @@
+"""Freezing time: Plank's equation, the enthalpy method, and the Neumann solution."""
+
+import numpy as np
+import pytest
+
+from planner.errors import ExtrapolationWarning, InputError, ModelRangeError
+from planner.freezing import (
+    ICE_CONDUCTIVITY,
+    ICE_HEAT_CAPACITY,
+    LATENT_HEAT_FUSION,
+    SHAPE_FACTORS,
+    WATER_CONDUCTIVITY,
+    WATER_DENSITY,
+    WATER_HEAT_CAPACITY,
+    FreezingMedium,
+    enthalpy_freezing,
+    neumann_front_coefficient,
+    plank_flags,
+    plank_freezing_time,
+    pure_water_medium,
+)
+from planner.isochoric import recalescence
+
+T0 = 273.15
+
+
+# --- Plank's equation -----------------------------------------------------------------------------------------
+def test_shape_factors_are_planks():
+    # Plank 1913 shape factors (P, R): slab 1/2, 1/8; infinite cylinder 1/4, 1/16; sphere 1/6, 1/24 (from
+    # memory, as tabulated in food-engineering texts)
+    assert SHAPE_FACTORS == {"slab": (0.5, 0.125), "cylinder": (0.25, 0.0625), "sphere": (1 / 6, 1 / 24)}
+
+
+@pytest.mark.parametrize(
+    ("depth", "published_s"),
+    [
+        # Young & Freedman, University Physics (11th ed., chapter 17 problem on ice growing on a lake; edition
+        # and problem number from memory), worked solution: rho = 920 kg/m3, L = 334 kJ/kg, k = 1.6 W/(m K),
+        # air 10 C below freezing, surface of the ice at the air temperature: 0.25 m of ice in 6.0e5 s,
+        # 40 m in 1.5e10 s. Ice growing down from one face is half of Plank's slab cooled on both faces,
+        # with h -> infinity: t = rho L (2x)^2 / (8 k dT) = rho L x^2 / (2 k dT).
+        pytest.param(0.25, 6.0e5, id="young-freedman-ch17-0.25m"),
+        pytest.param(40.0, 1.5e10, id="young-freedman-ch17-40m"),
+    ],
+)
+def test_plank_matches_textbook_quasi_steady_ice_growth(depth, published_s):
+    t = plank_freezing_time("slab", 2 * depth, 920.0, 334e3, T0, T0 - 10.0, np.inf, 1.6)
+    assert t == pytest.approx(published_s, rel=0.05)  # two significant figures
+    assert float(f"{t:.2g}") == published_s
+
+
+def test_plank_scalar_and_array():
+    scalar = plank_freezing_time("sphere", 0.02, 1000.0, 333.4e3, T0, T0 - 10.0, 100.0, 2.2)
+    array = plank_freezing_time("sphere", np.array([0.02, 0.04]), 1000.0, 333.4e3, T0, T0 - 10.0, 100.0, 2.2)
+    assert isinstance(scalar, float) and array.shape == (2,)
+    assert array[0] == pytest.approx(scalar)
+    # t = rho L / dT (P a / h + R a^2 / k): doubling a doubles the surface term and quadruples the conduction
+    surface = 1000 * 333.4e3 / 10 * (1 / 6) * np.array([0.02, 0.04]) / 100
+    inner = 1000 * 333.4e3 / 10 * (1 / 24) * np.array([0.02, 0.04]) ** 2 / 2.2
+    assert array == pytest.approx(surface + inner, rel=1e-12)
+
+
+def test_plank_refuses_a_medium_warmer_than_the_freezing_point():
+    with pytest.raises(ModelRangeError, match="medium_temperature"):
+        plank_freezing_time("slab", 0.01, 1000.0, 333.4e3, T0, T0 + 1.0, 100.0, 2.2)
+    with pytest.raises(InputError, match="geometry"):
+        plank_freezing_time("cube", 0.01, 1000.0, 333.4e3, T0, T0 - 1.0, 100.0, 2.2)
+
+
+def test_plank_flags_large_stefan_numbers():
+    assert plank_flags(T0, T0 - 10.0, LATENT_HEAT_FUSION) == []
+    with pytest.warns(ExtrapolationWarning, match="stefan_number"):
+        flags = plank_flags(T0, T0 - 100.0, LATENT_HEAT_FUSION)  # Ste = 2050 * 100 / 333400 = 0.61
+    assert [f.code for f in flags] == ["extrapolated"]
+
+
+# --- the enthalpy method against Plank ---------------------------------------------------------------------------
+@pytest.mark.parametrize("geometry", ["slab", "cylinder", "sphere"])
+@pytest.mark.parametrize("h", [50.0, 500.0])
+def test_enthalpy_method_agrees_with_plank_at_small_stefan_number(geometry, h):
+    # Pure water starting at its freezing point, bath 5 K below (Ste = 0.031): Plank neglects the sensible
+    # heat of the frozen layer, so the numerical time is longer, by a few percent; the enthalpy method's own
+    # grid error is first order in the cell size (about 2 % at 48 shells, from the mushy cell's conductivity).
+    a = 0.02  # slab thickness / diameter [m]
+    bath = T0 - 5.0
+    plank = plank_freezing_time(geometry, a, WATER_DENSITY, LATENT_HEAT_FUSION, T0, bath, h, ICE_CONDUCTIVITY)
+    path = enthalpy_freezing(geometry, a / 2, pure_water_medium(), T0, bath, h, duration=2 * plank,
+                             n_cells=48, stop_at_centre_ice_fraction=0.999)
+    numerical = path.time_to_centre_ice_fraction(0.999)
+    assert plank * 0.99 <= numerical <= plank * 1.07
+
+
+# --- the enthalpy method against Neumann -------------------------------------------------------------------------
+def test_neumann_root_matches_published_table():
+    # Alexiades & Solomon 1993, one-phase Stefan problem, lambda exp(lambda^2) erf(lambda) = St/sqrt(pi):
+    # St = 0.1 -> 0.2200, 0.5 -> 0.4648, 1.0 -> 0.6201 (from memory)
+    assert neumann_front_coefficient(0.1) == pytest.approx(0.2200, abs=5e-5)
+    assert neumann_front_coefficient(0.5) == pytest.approx(0.4648, abs=5e-5)
+    assert neumann_front_coefficient(1.0) == pytest.approx(0.6201, abs=5e-5)
+
+
+@pytest.mark.parametrize("superheat", [0.0, 5.0])
+def test_enthalpy_front_follows_neumann_solution(superheat):
+    # Half-space of water at T_f + superheat, surface held 10 K below freezing from t = 0 (Carslaw & Jaeger
+    # section 11.2): front at 2 lambda sqrt(alpha_s t). A 5 cm slab is a half-space for 30 min here.
+    surface = T0 - 10.0
+    alpha_s = ICE_CONDUCTIVITY / (WATER_DENSITY * ICE_HEAT_CAPACITY)
+    alpha_l = WATER_CONDUCTIVITY / (WATER_DENSITY * WATER_HEAT_CAPACITY)
+    lam = neumann_front_coefficient(ICE_HEAT_CAPACITY * 10.0 / LATENT_HEAT_FUSION,
+                                    WATER_HEAT_CAPACITY * superheat / LATENT_HEAT_FUSION, alpha_s / alpha_l)
+    path = enthalpy_freezing("slab", 0.05, pure_water_medium(), T0 + superheat, surface, np.inf, duration=1800.0,
+                             n_cells=200, record_interval=300.0, time_step=2.0)
+    for i in (2, 4, len(path.time) - 1):  # 10, 20 and 30 min
+        exact = 2 * lam * np.sqrt(alpha_s * path.time[i])
+        assert path.front_depth(i) == pytest.approx(exact, rel=0.02)
+    assert path.centre_ice_fraction[-1] < 1e-9  # the far side never froze: a half-space indeed
+
+
+# --- seeding, recalescence, freeze-concentration -------------------------------------------------------------
+def test_seeded_supercooled_water_recalesces_to_the_adiabatic_fraction():
+    # Latent heat of the first ice warms the rest to 0 C: x = c_l dT / L (REFERENCES section 6). The
+    # recalescence model computes the same from the IAPWS enthalpies of liquid and ice: agree within 2 %.
+    path = enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 - 5.0, T0 - 5.0, 1e-3, duration=10.0, n_cells=8)
+    assert path.centre_temperature[-1] == pytest.approx(T0, abs=1e-3)
+    iapws = recalescence(T0 - 5.0, None).ice_fraction_of_water
+    assert path.centre_ice_fraction[-1] == pytest.approx(iapws, rel=0.02)
+
+
+def _dilute_solution(depression: float) -> FreezingMedium:
+    liquidus = T0 - depression
+
+    def ice(T):
+        T = np.asarray(T, dtype=float)
+        return np.where(T < liquidus, 1.0 - depression / np.maximum(T0 - T, 1e-12), 0.0)
+
+    return FreezingMedium(liquidus=liquidus, ice_fraction=ice, water_mass_fraction=0.9)
+
+
+def test_solution_plateaus_at_its_liquidus_and_ends_at_equilibrium():
+    # Ideal dilute freeze-concentration (the unfrozen liquid concentrates so that its freezing point is the
+    # temperature): ice fraction of water f = 1 - dT_f / (T_m - T) below the liquidus.
+    medium = _dilute_solution(2.0)
+    path = enthalpy_freezing("cylinder", 0.005, medium, T0 - 5.0, T0 - 20.0, 25.0, duration=4 * 3600.0, n_cells=16)
+    # seeded 3 K below its liquidus, the first ice concentrates the rest a little: the plateau sits just below
+    assert T0 - 2.1 < path.plateau_temperature < T0 - 2.0
+    assert path.centre_temperature[-1] == pytest.approx(T0 - 20.0, abs=0.05)
+    assert path.centre_ice_fraction[-1] == pytest.approx(1 - 2.0 / 20.0, abs=2e-3)
+    assert np.all(np.diff(path.centre_ice_fraction[1:]) >= -1e-9)  # ice only grows while the bath is constant
+    assert path.unfrozen_fraction[-1] == pytest.approx(0.1, abs=2e-3)
+
+
+def test_bath_and_h_may_follow_a_programme():
+    ramp = lambda t: T0 - 2.0 - t / 60.0  # 1 K/min from -2 C  # noqa: E731
+    path = enthalpy_freezing("sphere", 0.004, _dilute_solution(1.0), T0 - 2.0, ramp, lambda t: 25.0,
+                             duration=1800.0, n_cells=12)
+    assert path.bath_temperature[-1] == pytest.approx(T0 - 32.0, abs=1e-6)
+    assert path.centre_temperature[-1] > path.bath_temperature[-1]  # the centre lags the ramp
+    assert np.all(np.diff(path.mean_temperature) <= 1e-9)
+
+
+def test_bad_enthalpy_inputs_are_refused():
+    with pytest.raises(ModelRangeError, match="half_dimension"):
+        enthalpy_freezing("slab", 0.0, pure_water_medium(), T0, T0 - 5, 100.0, duration=10.0)
+    with pytest.raises(ModelRangeError, match="heat_transfer_coefficient"):
+        enthalpy_freezing("slab", 0.01, pure_water_medium(), T0, T0 - 5, 0.0, duration=10.0)
+    with pytest.raises(ModelRangeError, match="ice_fraction"):
+        rising = FreezingMedium(liquidus=T0, ice_fraction=lambda T: np.where(np.asarray(T) < T0, 0.5 + (np.asarray(T) - T0) / 100, 0.0))
+        enthalpy_freezing("slab", 0.01, rising, T0, T0 - 60, 100.0, duration=10.0)
+
+
+def test_latent_heat_agrees_with_iapws():
+    # 333.4 kJ/kg (Incropera & DeWitt, from memory) against the IAPWS value the water-and-ice module computes
+    # (IAPWS-95 liquid minus R10-06 ice enthalpy at the melting point, 0.101325 MPa): agree to 0.1 %.
+    from planner.water_ice import latent_heat
+
+    assert LATENT_HEAT_FUSION == pytest.approx(float(latent_heat(273.152519, 101325.0)), rel=1e-3)

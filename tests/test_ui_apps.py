@@ -1,0 +1,304 @@
+"""The compare, archive and calibrate apps, the charts and the server launcher, headless."""
+
+from __future__ import annotations
+
+import math
+import socket
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from planner.errors import InputError
+from tests.test_ui_planner import DEMO, ROOT, stand_in_evaluate
+
+# --- the homogeneous-nucleation limit drawn on the schedule chart -------------------------------------------
+
+
+@pytest.mark.parametrize("celsius, log10_rate_per_cm3_s", [
+    # Koop & Murray 2016 (J. Chem. Phys. 145:211915) parameterisation, evaluated at these temperatures:
+    # log10 J = 4.42 at -35 C and 8.79 at -38 C (values in /work/shared/REFERENCES.md, [calc] from the
+    # published polynomial) [ref:koop-murray-2016]
+    (-35.0, 4.42),
+    (-38.0, 8.79),
+])
+def test_homogeneous_limit_koop_murray_2016(celsius, log10_rate_per_cm3_s):
+    """A volume that freezes within a second at exactly the published rate has its limit at that temperature."""
+    import planner.nucleation as nuc
+    from planner.ui.stepcharts import homogeneous_limit
+
+    volume = 10.0 ** (-log10_rate_per_cm3_s) * 1e-6  # m3 with J V = 1/s
+    limit = homogeneous_limit(volume, nuc.PURE_WATER_LIQUIDUS)
+    assert limit - 273.15 == pytest.approx(celsius, abs=0.15)  # grid of 0.1 K, published rate to 0.01 dex
+
+
+def test_homogeneous_limit_of_a_millilitre_is_warmer_than_of_a_droplet():
+    import planner.nucleation as nuc
+    from planner.ui.stepcharts import homogeneous_limit
+
+    small = homogeneous_limit(1e-15, nuc.PURE_WATER_LIQUIDUS)
+    large = homogeneous_limit(1e-6, nuc.PURE_WATER_LIQUIDUS)
+    assert large > small
+
+
+# --- chart builders take plain data -----------------------------------------------------------------------
+
+def test_chart_builders_draw_offline_and_skip_missing_points():
+    from planner.ui.stepcharts import (
+        cells_chart,
+        chamber_chart,
+        freeze_map_chart,
+        freezing_point_chart,
+        schedule_chart,
+    )
+    from planner.ui.svg import chart_svg
+
+    charts = [
+        schedule_chart([0, 1, 2], {"bath": [4, -4, -4], "sample centre": [4, None, -3.9]}, liquidus_c=-0.8,
+                       homogeneous_c=-38.0, probability_time_h=[0, 2], probability=[0, 0.01]),
+        freezing_point_chart([0, 5, 10], [-0.5, -0.8, float("nan")], unit="% w/w", agent="glycerol", chosen=5,
+                             chosen_freezing_c=-0.8, hold_c=-4),
+        chamber_chart([-1, -5, -10], [13.2, 60.0, 110.0], [0.07, 0.26, 0.39], hold_c=-4, worst_c=-21.985),
+        cells_chart([0, 1, 2], [1.0, 0.7, 1.1], ["loading", "loading", "unloading"], low=0.6, high=1.2),
+        freeze_map_chart([1, 2], [-2, -4], [[0.01, 0.02], [0.05, 0.1]], marks=[(1.0, -4.0, "A")]),
+    ]
+    for chart in charts:
+        svg = chart_svg(chart)
+        assert svg.startswith("<svg") and "http" not in svg.replace("http://www.w3.org", "")
+
+
+def test_freeze_map_marks_each_scenario_with_the_nucleation_model():
+    from planner.protocol import load_protocol
+    from planner.ui.maps import VOLUMES_ML, freeze_map
+    from planner.ui.planner_model import default_evaluate
+    from planner.yamlio import load_yaml
+
+    path = ROOT / "protocols" / f"{DEMO}.yaml"
+    ev = default_evaluate(load_yaml(path.read_text()), DEMO, path.parent)
+    volumes, temps, grid, marks, note = freeze_map([(load_protocol(path), ev.assessment)], labels=["A"])
+    assert volumes == list(VOLUMES_ML) and grid.shape == (len(temps), len(volumes))
+    assert marks == [(pytest.approx(1.0), pytest.approx(marks[0][1]), "A")]
+    assert np.all(np.diff(grid, axis=1) >= 0)  # bigger samples freeze more readily ...
+    assert np.all(np.diff(grid, axis=0) >= -1e-12)  # ... and so do colder holds (rows go colder)
+    assert "72 h" in note
+
+
+# --- compare --------------------------------------------------------------------------------------------------
+
+def test_compare_lines_up_scenarios_and_keeps_two_to_four():
+    from planner.ui.compare_model import CompareModel, scenarios_from_query
+
+    assert scenarios_from_query("scenario=supercooled-open-vial&scenario=nope&scenario=../x") == [DEMO]
+    m = CompareModel([DEMO], inline=True, evaluate=stand_in_evaluate())
+    assert len(m.scenarios) == 2 and m.names == [f"A: {DEMO}", f"B: copy of {DEMO}"]
+    m.set_value(1, "sample.volume_ml", "7")
+    names, rows = m.margins_table()
+    label, cells = rows[1]
+    assert label == "Test margin" and [c.value_text for c in cells] == ["1 mL", "7 mL"]
+    assert [c.state for c in cells] == ["fine", "watch"]
+    m.set_value(1, "sample.volume_ml", "-1")
+    assert m.margins_table()[1][1][1][1].value_text == "7 mL (stale)"
+    m.add_demo("rigid-chamber-hold")
+    m.duplicate(0)
+    with pytest.raises(InputError, match="2 to 4"):
+        m.duplicate(0)
+    for _ in range(2):
+        m.remove(0)
+    with pytest.raises(InputError, match="2 to 4"):
+        m.remove(0)
+    assert m.letters == ["A", "B"]
+
+
+def test_compare_app_widgets_edit_one_scenario():
+    from planner.ui.compare_app import CompareApp
+    from planner.ui.compare_model import CompareModel
+
+    app = CompareApp(model=CompareModel([DEMO, "rigid-chamber-hold"], inline=True, evaluate=stand_in_evaluate()))
+    column = app.columns[1]
+    path, box, err = next(i for i in column.inputs if i[0] == "sample.volume_ml")
+    box.value = "12"
+    assert "do not proceed" in app.table.value and "12 mL" in app.table.value
+    box.value = "abc"
+    assert "sample.volume_ml" in err.value and "stale" in app.table.value
+    assert "<svg" in app.charts.value  # without the thermal section the bath histories are drawn
+    assert "Planning support only" in app.widget.children[-1].value
+
+
+# --- archive and signing ----------------------------------------------------------------------------------------
+
+PASS = "a passphrase for tests"
+
+
+@pytest.fixture
+def signed(tmp_path):
+    from planner.keys import generate_key
+    from planner.ui.planner_model import PlannerModel
+    from planner.ui.signing import sign_into_archive
+
+    key = tmp_path / "k"
+    generate_key("Test Signer", "tester", key, PASS, kdf_rounds=1)
+    model = PlannerModel(evaluate=stand_in_evaluate(), inline=True)
+    model.load_demo(DEMO)
+    archive = tmp_path / "a.sqlite"
+    done = sign_into_archive(model, "Test Signer", "authored", str(key), PASS, str(archive), register_key=True,
+                             cautions_seen=True)
+    return model, key, archive, done
+
+
+def test_signing_refuses_what_it_must(signed, tmp_path):
+    from planner.ui.signing import sign_into_archive
+
+    model, key, archive, done = signed
+    assert len(done.record_hash) == 64 and done.version == 1
+    with pytest.raises(InputError, match="cautions"):
+        sign_into_archive(model, "Test Signer", "authored", str(key), PASS, str(archive), cautions_seen=False)
+    with pytest.raises(InputError, match="wrong passphrase"):
+        sign_into_archive(model, "Test Signer", "authored", str(key), "not the passphrase", str(archive),
+                          cautions_seen=True)
+    with pytest.raises(InputError, match="printed name"):
+        sign_into_archive(model, "Someone Else", "authored", str(key), PASS, str(archive), cautions_seen=True)
+    with pytest.raises(InputError, match="meaning"):
+        sign_into_archive(model, "Test Signer", "liked", str(key), PASS, str(archive), cautions_seen=True)
+    with pytest.raises(InputError, match="registered"):
+        sign_into_archive(model, "Test Signer", "authored", str(key), PASS, str(tmp_path / "new.sqlite"),
+                          cautions_seen=True)
+    model.set_value("sample.volume_ml", "-3")
+    with pytest.raises(InputError, match="stale"):
+        sign_into_archive(model, "Test Signer", "authored", str(key), PASS, str(archive), cautions_seen=True)
+
+
+def test_archive_lists_opens_and_verifies_a_signed_record(signed):
+    from planner.ui.archive_app import ArchiveApp
+    from planner.ui.archive_model import ArchiveModel
+
+    _, _, archive, done = signed
+    m = ArchiveModel(archive)
+    m.load()
+    assert [r.record_hash for r in m.rows] == [done.record_hash]
+    assert m.head == done.head
+    opened = m.open_record(done.record_hash, expected_head=done.head)
+    assert opened.check.ok and opened.chain.ok and opened.data == done.data
+    assert opened.check.signatures[0].printed_name == "Test Signer"
+    assert "<html" in m.rendering_html().lower() and m.rendering_pdf().startswith(b"%PDF")
+    with pytest.raises(InputError, match="listed"):
+        m.open_record("0" * 64)
+    app = ArchiveApp(archive)
+    app.verify_button.click()
+    assert "cm-verified" in app.result.value and done.record_hash in app.result.value
+    assert "record (JSON" in app.downloads.value and "srcdoc=" in app.view.value
+    app.expected.value = "9:" + "f" * 64
+    app.verify_button.click()
+    assert "NOT verified" in app.result.value  # a head kept elsewhere that the archive does not hold
+
+
+def test_archive_that_does_not_exist_is_an_error_not_created(tmp_path):
+    from planner.ui.archive_model import ArchiveModel
+
+    with pytest.raises(InputError, match="existing archive"):
+        ArchiveModel(tmp_path / "none.sqlite").load()
+    assert not (tmp_path / "none.sqlite").exists()
+
+
+# --- calibrate --------------------------------------------------------------------------------------------------
+
+def test_calibrate_fits_a_demo_assay_and_saves_without_overwriting(tmp_path):
+    from planner.calibration import load_calibration
+    from planner.ui.calibrate_model import CalibrateModel, demo_assays
+
+    assays = demo_assays()
+    assert assays, "the invented demo assays are missing"
+    m = CalibrateModel()
+    m.load_demo(next(iter(assays)))
+    cal = m.fit()
+    summary = dict(m.summary())
+    assert summary["Samples (frozen)"] == f"{cal.samples} ({cal.frozen})"
+    curve = m.curve()
+    assert all(lo <= c <= hi for lo, c, hi in zip(curve["log10_low"], curve["log10_rate"], curve["log10_high"],
+                                                  strict=True))
+    saved = m.save(tmp_path, "lab cal")
+    assert saved.name == "lab-cal.yaml" and (tmp_path / m.assay.name).is_file()
+    back = load_calibration(saved)
+    assert back.ln_rate_ref == pytest.approx(cal.ln_rate_ref)
+    with pytest.raises(InputError, match="overwritten"):
+        m.save(tmp_path, "lab cal")
+    with pytest.raises(InputError, match="UTF-8"):
+        m.load_text("x.csv", b"\xff\xfe")
+
+
+# --- serving ------------------------------------------------------------------------------------------------------
+
+def test_voila_command_binds_loopback_with_token_and_no_sources():
+    from planner.serve import ServeConfig, voila_command
+
+    cfg = ServeConfig(token="abc", pool=3, cull_idle_s=600).check()
+    cmd = voila_command(cfg, 9999)
+    joined = " ".join(cmd)
+    for part in ("--Voila.ip=127.0.0.1", "--port=9999", "--Voila.port_retries=0", "--token=abc",
+                 "--strip_sources=True", "--show_tracebacks=False", "--template=coldmargin",
+                 "--MappingKernelManager.cull_idle_timeout=600", "--preheat_kernel=True", "--pool_size=3",
+                 "--VoilaExecutor.timeout="):
+        assert part in joined
+    assert cmd[3].endswith("notebooks")
+
+
+def test_voila_environment_uses_its_own_jupyter_folders(tmp_path):
+    from planner.serve import STATIC, ServeConfig, voila_environment
+
+    protocol = ROOT / "protocols" / f"{DEMO}.yaml"
+    env = voila_environment(ServeConfig(protocol=protocol, large_type=True), tmp_path, base={"PATH": "/bin"})
+    for name in ("JUPYTER_CONFIG_DIR", "JUPYTER_DATA_DIR", "JUPYTER_RUNTIME_DIR", "IPYTHONDIR"):
+        assert Path(env[name]).is_dir() and Path(env[name]).parent == tmp_path
+    assert env["JUPYTER_PATH"].split(":")[0] == str(STATIC)
+    assert (STATIC / "voila" / "templates" / "coldmargin" / "index.html.j2").is_file()
+    assert "cdn." not in (STATIC / "voila" / "templates" / "coldmargin" / "index.html.j2").read_text()
+    assert env["COLDMARGIN_PROTOCOL"] == str(protocol.resolve()) and env["COLDMARGIN_LARGE_TYPE"] == "1"
+
+
+def test_a_taken_port_falls_back_to_a_free_one():
+    from planner.serve import free_port, port_is_free
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        s.listen()
+        taken = s.getsockname()[1]
+        assert not port_is_free(taken)
+        other = free_port(taken)
+        assert other != taken and port_is_free(other)
+
+
+@pytest.mark.parametrize("changes, field", [
+    ({"port": 70000}, "--port"), ({"pool": 99}, "--pool"), ({"cull_idle_s": 1}, "--cull-idle-min"),
+    ({"notebook": "nope"}, "--notebook"), ({"protocol": Path("/no/such.yaml")}, "--protocol"),
+    ({"timeout_s": 1}, "--timeout-s"),
+])
+def test_bad_server_options_name_the_option(changes, field):
+    from planner.serve import ServeConfig
+
+    with pytest.raises(InputError, match=field):
+        ServeConfig(**changes).check()
+
+
+def test_print_command_hides_the_token(capsys):
+    from planner.serve import main
+
+    assert main(["--print-command", "--port", "0"]) == 0
+    out = capsys.readouterr().out
+    assert "--token=(hidden)" in out and "voila" in out
+
+
+def test_notebooks_are_thin_and_saved_without_outputs():
+    import nbformat
+
+    for name in ("plan", "compare", "calibrate", "archive"):
+        nb = nbformat.read(ROOT / "notebooks" / f"{name}.ipynb", as_version=4)
+        code = [c for c in nb.cells if c.cell_type == "code"]
+        assert len(code) == 1 and not code[0].outputs and code[0].execution_count is None
+        assert code[0].source.startswith("from planner.ui import ") and len(code[0].source.splitlines()) <= 3
+
+
+def test_isolated_percent_formatting_of_margins():
+    from planner.ui.summary import MarginRow
+
+    row = MarginRow("p", "Chance", 0.0096, "1", "fine", 0.01, 0.05, "lower", "default")
+    assert row.value_text == "0.0096" and row.threshold_text == "watch above 0.01, stop above 0.05 (default policy)"
+    assert math.isfinite(row.value)

@@ -1,0 +1,405 @@
+"""The plan notebook without a browser: the draft, the model and the widgets driven through the demos.
+
+Most tests use the real protocol loader with a small stand-in assessment (defined here, in the tests only)
+so they stay fast; ``test_whole_demo_with_the_real_assessment`` runs the real assessment end to end.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from planner.errors import InputError
+from planner.protocol import CELSIUS_OFFSET, parse_protocol, protocol_to_yaml
+from planner.ui.draft import Draft, blank_like, format_entry, join_path, parse_entry, split_path
+from planner.ui.fields import css_name, label_for, unit_of
+from planner.ui.planner_model import Evaluation, PlannerModel, demo_files
+from planner.ui.summary import fmt, margin_rows, strip_html
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = "supercooled-open-vial"
+
+
+def stand_in_evaluate(calls: list | None = None):
+    """Test-only assessment: the real loader, then one margin equal to the sample volume in mL.
+
+    Its numbers mean nothing physically; they only let the tests see that a change reaches the strip.
+    """
+
+    def evaluate(document, name, base_dir):
+        protocol = parse_protocol(protocol_to_yaml(document), name, base_dir=base_dir)
+        if calls is not None:
+            calls.append(document)
+        volume_ml = protocol.sample.volume * 1e6
+        report = {
+            "schema": "test", "title": protocol.title,
+            "margin_states": [{"name": "volume_test", "label": "Test margin", "value": volume_ml, "unit": "mL",
+                               "watch": 5.0, "stop": 10.0, "better": "lower", "policy": "default",
+                               "state": "fine" if volume_ml < 5 else "watch" if volume_ml < 10 else "do-not-proceed"}],
+            "verdict": {"state": "fine", "reasons": []}, "flags": [], "cautions": [],
+        }
+        return Evaluation(protocol, None, report)
+
+    return evaluate
+
+
+# --- draft and fields ------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("path, parts", [
+    ("sample.volume_ml", ["sample", "volume_ml"]),
+    ("schedule.steps[2].ramp_to_c", ["schedule", "steps", 2, "ramp_to_c"]),
+    ("schedule.steps[1].seed_ice.at_c", ["schedule", "steps", 1, "seed_ice", "at_c"]),
+    ("title", ["title"]),
+])
+def test_key_paths_split_and_join(path, parts):
+    assert split_path(path) == parts
+    assert join_path(parts) == path
+
+
+@pytest.mark.parametrize("bad", ["", "a..b", "a[x]", "[", "a.b["])
+def test_bad_key_paths_are_refused_naming_the_path(bad):
+    with pytest.raises(InputError, match="field"):
+        split_path(bad)
+
+
+@pytest.mark.parametrize("typed, stored", [
+    ("2", 2), ("2.5", 2.5), ("\u22124", -4), ("-4.0", -4.0), ("1e-3", 0.001), ("", None), ("  ", None),
+    ("abc", "abc"), ("12 mL", "12 mL"), ("1,5", "1,5"),
+])
+def test_typed_text_is_stored_as_a_number_or_kept_as_typed(typed, stored):
+    assert parse_entry(typed) == stored
+    assert type(parse_entry(typed)) is type(stored)
+
+
+def test_format_entry_round_trips_numbers():
+    for value in (2, 2.5, -4.0, 0.001, 1e-7, 1234567.0, 0.1 + 0.2, 5e-324):
+        back = parse_entry(format_entry(value))
+        assert back == value and type(back) is type(value)  # exactly, nothing rounded away
+
+
+def test_draft_set_get_remove_and_prune():
+    d = Draft({"sample": {"volume_ml": 1.0}, "schedule": {"steps": [{"hold_h": 1}]}})
+    d.set("sample.diameter_mm", 10)
+    d.set("schedule.steps[0].hold_h", 2)
+    d.set("container.kind", "open")  # creates the mapping
+    assert d.get("sample.diameter_mm") == 10
+    assert d.get("schedule.steps[0].hold_h") == 2
+    assert d.get("container.kind") == "open"
+    d.set("sample.diameter_mm", None)
+    assert "diameter_mm" not in d.document["sample"]  # an empty box is "not given"
+    assert d.has("sample.diameter_mm")  # ... but the box stays
+    with pytest.raises(InputError, match=r"schedule.steps\[3\]"):
+        d.set("schedule.steps[3].hold_h", 1)
+    d.remove("schedule.steps[0]")
+    assert d.get("schedule.steps") == []
+
+
+def test_draft_copies_what_it_is_given():
+    doc = {"sample": {"volume_ml": 1.0}}
+    d = Draft(doc)
+    d.set("sample.volume_ml", 2.0)
+    assert doc["sample"]["volume_ml"] == 1.0
+
+
+def test_blank_keeps_the_keys_and_the_schema_only():
+    blank = blank_like({"schema": "s", "title": "t", "sample": {"volume_ml": 2}, "steps": [{"a": 1}, {"b": 2}]})
+    assert blank == {"schema": "s", "title": None, "sample": {"volume_ml": None}, "steps": [{"a": None}]}
+
+
+@pytest.mark.parametrize("path, label", [
+    ("sample.volume_ml", "Volume (mL)"),
+    ("schedule.steps[3].rate_c_per_min", "Rate (°C/min)"),
+    ("schedule.steps[0].ramp_to_c", "Ramp to (°C)"),
+    ("solution.cryoprotectants[0].mass_percent", "Concentration (% w/w)"),
+    ("container.cavity_compliance_per_gpa", "Cavity compliance (1/GPa)"),
+    ("environment.h_w_per_m2_k", "Heat-transfer coefficient (W/(m² K))"),
+    ("a_new_section.some_pressure_mpa", "Some pressure (MPa)"),  # an unknown key still gets a unit
+])
+def test_labels_carry_the_unit_of_the_key(path, label):
+    assert label_for(path) == label
+
+
+def test_unit_suffixes_and_css_names():
+    assert unit_of("hold_h") == ("hold", "h")
+    assert unit_of("geometry") == ("geometry", "")
+    assert css_name("schedule.steps[1].hold_h") == "cm-f-schedule-steps-1-hold_h"
+
+
+def test_number_formatting_for_the_screen():
+    assert fmt(None) == "–"
+    assert fmt(3.14159) == "3.142"
+    assert fmt(2.205e-05) == "2.205e-5"
+    assert fmt(float("nan")) == "–"
+    assert fmt(True) == "yes"
+
+
+# --- the model with the stand-in assessment --------------------------------------------------------------
+
+@pytest.fixture
+def model():
+    m = PlannerModel(evaluate=stand_in_evaluate(), inline=True)
+    m.load_demo(DEMO)
+    return m
+
+
+def test_demos_are_found_and_are_invented_examples():
+    demos = demo_files()
+    assert {"supercooled-open-vial", "rigid-chamber-hold", "slow-freeze-dmso"} <= set(demos)
+    for path in demos.values():
+        assert "invented" in path.read_text(encoding="utf-8").lower()
+
+
+def test_a_change_reaches_the_margins(model):
+    assert model.current and model.margins()[0].value == pytest.approx(1.0)
+    model.set_value("sample.volume_ml", "7.5")
+    assert model.current
+    row = model.margins()[0]
+    assert row.value == pytest.approx(7.5) and row.state == "watch" and row.word == "watch"
+
+
+def test_a_bad_value_shows_the_loaders_own_error_and_keeps_the_last_result_stale(model):
+    before = model.report
+    model.set_value("sample.volume_ml", "-2")
+    with pytest.raises(InputError) as loader_error:
+        doc = model.draft.document
+        parse_protocol(protocol_to_yaml(doc), DEMO)
+    assert model.field_errors == {"sample.volume_ml": str(loader_error.value)}
+    assert "sample.volume_ml" in model.field_errors["sample.volume_ml"]
+    assert "-2" in model.field_errors["sample.volume_ml"]
+    assert model.stale and not model.current
+    assert model.report is before  # the last valid result stays ...
+    assert "Stale" in strip_html(model.margins(), "fine", model.stale, False)  # ... marked stale
+    model.set_value("sample.volume_ml", "1")
+    assert not model.stale and model.field_errors == {} and model.current
+
+
+def test_text_in_a_number_field_is_refused_by_the_loader_naming_the_field(model):
+    model.set_value("sample.volume_ml", "two")
+    message = model.field_errors["sample.volume_ml"]
+    assert "sample.volume_ml" in message and "'two'" in message and "5000" in message
+
+
+def test_moving_between_steps_loses_nothing(model):
+    model.set_value("sample.volume_ml", "0.5")
+    model.set_value("solution.cryoprotectants[0].mass_percent", "12")
+    for _ in model.step_names:
+        model.next()
+    assert model.step == "sign"
+    for _ in model.step_names:
+        model.back()
+    assert model.step == "sample"
+    model.go("schedule")
+    model.go("solution")
+    assert model.value("sample.volume_ml") == 0.5
+    assert model.value("solution.cryoprotectants[0].mass_percent") == 12
+    assert model.visited == set(model.step_names)
+    with pytest.raises(InputError, match="step"):
+        model.go("nowhere")
+
+
+def test_rows_are_added_removed_and_moved(model):
+    steps = model.value("schedule.steps")
+    n = len(steps)
+    index = model.add_row("schedule.steps", "hold")
+    assert index == n and model.value(f"schedule.steps[{n}]") == {"hold_h": None}
+    assert "schedule.steps[3].hold_h" in model.field_errors or model.field_errors  # an empty hold is refused
+    model.set_value(f"schedule.steps[{n}].hold_h", "1")
+    assert model.current
+    model.move_row(f"schedule.steps[{n}]", -1)
+    assert model.value(f"schedule.steps[{n - 1}]") == {"hold_h": 1}
+    model.remove_row(f"schedule.steps[{n - 1}]")
+    assert len(model.value("schedule.steps")) == n
+    with pytest.raises(InputError, match="new row"):
+        model.add_row("schedule.steps", "teleport")
+
+
+def test_the_last_schedule_step_cannot_be_removed(model):
+    while len(model.value("schedule.steps")) > 1:
+        model.remove_row("schedule.steps[0]")
+    with pytest.raises(InputError, match="at least 1"):
+        model.remove_row("schedule.steps[0]")
+
+
+def test_changing_the_concentration_unit_keeps_the_number(model):
+    row = "solution.cryoprotectants[0]"
+    assert model.unit_of_row(row) == "mass_percent"
+    model.set_unit(row, "percent_w_v")
+    assert model.value(row) == {"agent": "trehalose", "percent_w_v": 5.0}
+    assert list(model.value(row)) == ["agent", "percent_w_v"]
+    with pytest.raises(InputError, match="unit"):
+        model.set_unit(row, "furlongs")
+
+
+def test_the_cells_block_is_optional_and_comes_back_as_it_was(model):
+    assert not model.draft.has("cells")
+    model.include("cells", True)
+    model.set_value("cells.preset", "made-up-cell")
+    assert "cells.preset" in model.field_errors  # the loader names the unknown preset
+    model.include("cells", False)
+    assert not model.draft.has("cells") and model.current
+    model.include("cells", True)
+    assert model.value("cells.preset") == "made-up-cell"
+
+
+def test_an_error_outside_any_field_is_a_message(model):
+    model.set_value("schema", "coldmargin/protocol-0")
+    assert model.field_errors.get("schema") or model.message
+    assert model.step_of_error("sample.volume_ml") == "sample"
+    assert model.step_of_error("schedule.steps[1].hold_h") == "schedule"
+    assert model.step_of_error("solution.cryoprotectants[0].agent") == "solution"
+
+
+def test_upload_blank_and_download(model):
+    text = (ROOT / "protocols" / "rigid-chamber-hold.yaml").read_text(encoding="utf-8")
+    model.load_upload("my-chamber.yaml", text.encode("utf-8"))
+    assert model.source_name == "my-chamber" and model.current
+    assert model.download_name() == "my-chamber.yaml"
+    assert parse_protocol(model.protocol_yaml(), "again").container.kind == "rigid"
+    with pytest.raises(InputError, match="UTF-8"):
+        model.load_upload("bad.yaml", b"\xff\xfe\x00")
+    with pytest.raises(InputError, match="mapping"):
+        model.load_upload("list.yaml", b"- 1\n- 2\n")
+    model.start_blank()
+    assert model.value("sample.volume_ml") is None and model.report is None
+    assert model.field_errors or model.message  # a blank protocol says what is missing
+
+
+def test_assessments_are_reused_for_a_draft_seen_before():
+    calls: list = []
+    m = PlannerModel(evaluate=stand_in_evaluate(calls), inline=True)
+    m.load_demo(DEMO)
+    m.set_value("sample.volume_ml", "2.0")
+    m.set_value("sample.volume_ml", "1.0")
+    m.set_value("sample.volume_ml", "2.0")
+    assert len(calls) == 2  # the demo and volume 2; flipping back and forth is not re-assessed
+
+
+def test_the_threaded_worker_applies_only_the_newest_result():
+    m = PlannerModel(evaluate=stand_in_evaluate(), inline=False)
+    m.load_demo(DEMO)
+    m.wait()
+    for v in ("2", "3", "4"):
+        m.set_value("sample.volume_ml", v)
+    m.wait()
+    assert m.margins()[0].value == pytest.approx(4.0) and not m.working
+
+
+def test_margin_rows_read_the_assessment_shape():
+    rows = margin_rows({"margin_states": [
+        {"name": "a", "label": "A", "value": 1.0, "unit": "K", "state": "do-not-proceed", "watch": 5, "stop": 15,
+         "better": "lower", "policy": "default"}]})
+    assert rows[0].word == "do not proceed"
+    assert rows[0].threshold_text == "watch above 5, stop above 15 K (default policy)"
+    html = strip_html(rows, "do-not-proceed", False, False)
+    assert "do not proceed" in html and "✕" in html  # a word and a mark, not colour alone
+
+
+# --- the widgets, headless ---------------------------------------------------------------------------------
+
+def _field(app, path):
+    for view in app.step_views.values():
+        for fv in view.fields:
+            if fv.path == path:
+                return fv
+        for rows in view.rows:
+            for fv in rows.fields:
+                if fv.path == path:
+                    return fv
+    raise AssertionError(f"no field {path}")
+
+
+def test_app_widgets_bind_to_the_model():
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    assert "Test margin" in app.strip.value and "fine" in app.strip.value
+    volume = _field(app, "sample.volume_ml")
+    volume.input.value = "7"
+    assert app.model.value("sample.volume_ml") == 7
+    assert "watch" in app.strip.value and "7 mL" in app.strip.value
+    volume.input.value = "-1"
+    assert "sample.volume_ml" in volume.error.value and "-1" in volume.error.value
+    assert "Stale" in app.strip.value and "7 mL" in app.strip.value  # last valid result, marked stale
+    volume.input.value = "1"
+    assert volume.error.value == "" and "Stale" not in app.strip.value
+    # steps: the bar, next and back drive the model; the body shows the step
+    app.next_button.click()
+    assert app.model.step == "container" and app.body.children[0] is app.step_views["container"].box
+    app.steps_bar.value = "review"
+    assert app.body.children[0] is app.review.box
+    # rows: add a hold from the schedule step
+    rows = app.step_views["schedule"].rows[0]
+    n = len(app.model.value("schedule.steps"))
+    rows.new_kind.value = "hold"
+    rows.box.children[-1].children[1].click()
+    assert len(app.model.value("schedule.steps")) == n + 1
+    assert any(fv.path == f"schedule.steps[{n}].hold_h" for fv in rows.fields)
+    # the protocol downloads as YAML from the page itself
+    assert "data:text/yaml;base64," in app.download.value
+    assert "Planning support only" in app.planning.value
+
+
+@pytest.mark.slow
+def test_whole_demo_with_the_real_assessment():
+    """The open-vial demo through every step with the real assessment: a change of the trehalose
+    concentration moves the liquidus the way the solution model says, and the supercooling margin with it."""
+    from planner.solution import composition, freezing_point
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml", inline=True)
+    m = app.model
+    assert m.current, m.message
+    before = m.report["solution"]
+    margins = {r.name: r for r in m.margins()}
+    assert "supercooling_k" in margins
+    visited = []
+    while True:
+        visited.append(m.step)
+        if m.step == "sign":
+            break
+        app.next_button.click()
+    assert visited == m.step_names
+    field = _field(app, "solution.cryoprotectants[0].mass_percent")
+    field.input.value = "15"
+    assert m.current
+    after = m.report["solution"]
+    expected = float(np.asarray(freezing_point(composition("isotonic-saline", [("trehalose", "mass_percent", 15.0)]))))
+    liquidus_key = next(k for k in after if k.startswith("freezing_point") or k.startswith("liquidus"))
+    assert after[liquidus_key] == pytest.approx(expected - CELSIUS_OFFSET, abs=2e-3)
+    assert after[liquidus_key] < before[liquidus_key]
+    new_margins = {r.name: r for r in m.margins()}
+    assert new_margins["supercooling_k"].value < margins["supercooling_k"].value
+    assert "Cautions" in app.sign.box.children[0].value
+    assert app.sign.cautions.value  # cautions shown before signing
+
+
+def test_what_would_it_take_lists_only_changes_that_help(model):
+    from planner.ui.whatif import suggestions
+
+    model.set_value("sample.volume_ml", "7")
+    assert model.margins()[0].state == "watch"
+
+    def evaluate(doc):
+        return stand_in_evaluate()(doc, "x", None).report
+
+    seen = []
+    found = suggestions(model.draft.document, model.report, evaluate, progress=lambda d, t: seen.append((d, t)))
+    labels = [s.label for s in found]
+    assert labels == ["half the sample volume"]  # the stand-in margin only depends on the volume
+    assert found[0].improved == [("Test margin", "watch", "fine")]
+    assert seen[-1][0] == seen[-1][1]
+    assert model.value("sample.volume_ml") == 7  # the draft itself is not changed
+
+
+def test_review_suggestions_from_the_widgets():
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    app.model.set_value("sample.volume_ml", "7")
+    app.model.go("review")
+    app.review.suggest_button.click()
+    assert "half the sample volume" in app.review.suggestions.value
