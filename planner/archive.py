@@ -177,6 +177,14 @@ class ArchiveCheck:
         return out
 
 
+@dataclass
+class _Versions:
+    """While verifying: the latest archived copy of each (record id, version), and the record ids seen."""
+
+    latest: dict[tuple[str, int], dict] = field(default_factory=dict)
+    subjects: set[str] = field(default_factory=set)
+
+
 def _row_entry(row: tuple) -> Entry:
     return Entry(row[0], row[1], row[2], row[3], bytes(row[4]), row[5], row[6], row[7], row[8], row[9])
 
@@ -501,7 +509,7 @@ class Archive:
         prev_seq, prev_hash = 0, GENESIS
         seen_hashes: dict[str, int] = {}
         voided: set[str] = set()
-        copies: dict = {}  # latest archived copy of each record version
+        copies = _Versions()
         count = 0
         for e in self.entries():
             count += 1
@@ -532,7 +540,7 @@ class Archive:
         return ArchiveCheck(not problems, count, prev_seq, prev_hash, problems, notes)
 
     def _check_entry(
-        self, e: Entry, ring: KeyRing, voided: set[str], check_records: bool, copies: dict
+        self, e: Entry, ring: KeyRing, voided: set[str], check_records: bool, copies: _Versions
     ) -> list[EntryProblem]:
         out = []
         try:
@@ -581,26 +589,26 @@ class Archive:
         return out
 
     @staticmethod
-    def _check_versions(e: Entry, record: dict, copies: dict) -> list[EntryProblem]:
+    def _check_versions(e: Entry, record: dict, copies: _Versions) -> list[EntryProblem]:
         """The rules append_record keeps: a later copy of a version only adds signatures; version n > 1
         first arrives as a supersede entry naming an archived copy of version n - 1."""
         out = []
         body, key = record["body"], (e.subject, e.version)
-        earlier = copies.get(key)
+        earlier = copies.latest.get(key)
         if earlier is not None:
             n = len(earlier["signatures"])
             if e.kind != "record" or body != earlier["body"] or record["signatures"][:n] != earlier["signatures"]:
                 out.append(EntryProblem(e.seq, f"not the archived version {e.version} with signatures added"))
         elif e.version == 1:
-            if e.kind != "record" or e.subject in copies.get("subjects", set()):
+            if e.kind != "record" or e.subject in copies.subjects:
                 out.append(EntryProblem(e.seq, "version 1 of a record that already has versions"))
         else:
-            before = copies.get((e.subject, e.version - 1))
+            before = copies.latest.get((e.subject, e.version - 1))
             if e.kind != "supersede" or before is None or body["supersedes"]["record_hash"] not in before["hashes"]:
                 out.append(EntryProblem(e.seq, f"version {e.version} does not supersede an archived version {e.version - 1}"))
         hashes = (earlier or {}).get("hashes", set()) | {e.content_hash}
-        copies[key] = {"body": body, "signatures": record["signatures"], "hashes": hashes}
-        copies.setdefault("subjects", set()).add(e.subject)
+        copies.latest[key] = {"body": body, "signatures": record["signatures"], "hashes": hashes}
+        copies.subjects.add(e.subject)
         return out
 
     # ------------------------------------------------------------------------------------------- export

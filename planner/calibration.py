@@ -481,7 +481,38 @@ def fit_assay(assay: Assay) -> Calibration:
                       slope_fixed=single_temperature, log_likelihood=ll, flags=flags, **base)
     cal.parameters = {"optimiser": "scipy.optimize.minimize BFGS", "converged": bool(res.success)}
     cal.goodness_of_fit = goodness_of_fit(assay, cal)
+    cal.flags.extend(misfit_flags(cal.goodness_of_fit))
     return cal
+
+
+# two-sided exact binomial test level below which a group's observed count is called a misfit
+MISFIT_LEVEL = 0.05
+
+
+def misfit_flags(rows: list[dict], level: float = MISFIT_LEVEL) -> list[Flag]:
+    """Flags for hold groups whose frozen count the fit makes improbable (two-sided exact binomial test).
+
+    A fit can have a narrow interval and still not describe its own data (a medium whose rate does not
+    follow the exponential form, a batch effect): each hold group's observed count is tested against its
+    predicted fraction, and a group below ``level`` is named. With several groups one may fall below 5 %
+    by chance; the flag asks for a look, it does not reject the fit. Ramp rows share samples across
+    thresholds and are not tested.
+    """
+    from scipy.stats import binomtest
+
+    out = []
+    for row in rows:
+        if row.get("kind") != "hold":
+            continue
+        n, observed, predicted = int(row["samples"]), float(row["observed"]), float(row["predicted"])
+        k = int(round(observed * n))
+        p_value = binomtest(k, n, min(max(predicted, 0.0), 1.0)).pvalue
+        if p_value < level:
+            out.append(Flag("indicative", f"the fit does not describe the hold at {row['condition']}: {k} of {n} "
+                            f"froze where it predicts {predicted:.0%} (exact binomial test p = {p_value:.2g}); "
+                            "check that group, or the medium's rate does not follow the fitted form",
+                            "vali-1971"))
+    return out
 
 
 def _survival_ramp(cal: Calibration, k: float, x_end: float) -> float:

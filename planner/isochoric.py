@@ -615,12 +615,20 @@ def open_state(temperature: ArrayLike, liquid: Liquid, solute_mass: float = 0.0)
     t = t0.ravel()
     target = np.asarray(liquid.osmolality_at_freezing(t), dtype=float)
     frozen = t < liquid.freezing_temperature
-    lo, hi = np.zeros_like(t), np.full_like(t, np.log(1e4))
+    # Bisection needs osmolality rising with f: fitted virial sets with a negative third coefficient turn
+    # over at high concentration, so search only up to the first factor where it stops rising, and refuse
+    # (NaN) a liquidus the liquid cannot reach before that.
+    grid = np.linspace(0.0, np.log(1e4), 400)
+    along = np.asarray(liquid.osmolality_of_factor(np.exp(grid)), dtype=float)
+    rising = np.diff(along) > 0
+    peak = len(grid) - 1 if rising.all() else int(np.argmin(rising))
+    lo, hi = np.zeros_like(t), np.full_like(t, grid[peak])
     for _ in range(60):
         mid = 0.5 * (lo + hi)
         above = np.asarray(liquid.osmolality_of_factor(np.exp(mid)), dtype=float) > target
         hi, lo = np.where(above, mid, hi), np.where(above, lo, mid)
-    f = np.where(frozen, np.exp(0.5 * (lo + hi)), 1.0)
+    reachable = target <= along[peak]
+    f = np.where(frozen, np.where(reachable, np.exp(0.5 * (lo + hi)), np.nan), 1.0)
     x = 1.0 - 1.0 / f
     shape = t0.shape
 

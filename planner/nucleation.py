@@ -1619,7 +1619,9 @@ def what_it_takes(time: ArrayLike, temperature: ArrayLike, volume: float, model:
     rate_here = hold_rate(t_hold)
     if q(h_rest) > h_target:
         longest = None
-        notes.append("the ramps and other steps alone exceed the target")
+        notes.append("even with no time at the hold temperature the rest of the sample's history exceeds the "
+                     "target: the ramps, and the part of the hold the sample spends catching up with the bath "
+                     "(a lagging sample sits just above the hold temperature for a while)")
     elif q(h_rest + rate_here * 1e9) <= h_target:
         longest = 1e9
         notes.append("any hold up to 1e9 s meets the target")

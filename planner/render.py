@@ -481,12 +481,15 @@ def render_pdf(data: bytes, check: RecordCheck | None = None) -> bytes:
     widths = [page_width - 133 * mm, 25 * mm, 18 * mm, 18 * mm, 17 * mm, 35 * mm, 20 * mm]
     story.append(table(rows, widths, extra=fills))
 
-    story.append(p("Charts", h2))
+    heading = [p("Charts", h2)]  # kept on the page of the first chart
     for title, chart in _chart_list(v):
         png = charts.to_png(chart, scale=2.0)
         w, h = _png_size(png)
         draw_w = min(page_width, w / 2 * 0.75)  # 2x pixels at 96 px/in, drawn at 72 pt/in
-        story.append(KeepTogether([p(title, small), Image(io.BytesIO(png), width=draw_w, height=draw_w * h / w)]))
+        story.append(KeepTogether([*heading, p(title, small),
+                                   Image(io.BytesIO(png), width=draw_w, height=draw_w * h / w)]))
+        heading = []
+    story += heading
 
     heading = [p("Cautions", h2)]  # kept on the page of the first caution
     for c in v.cautions:

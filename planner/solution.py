@@ -125,6 +125,17 @@ class GlassData:
 
 
 @dataclass(frozen=True)
+class FreezeConcentrateGlass:
+    """The maximally freeze-concentrated glass of a binary agent-water solution: Tg' [K] and its solute
+    mass fraction Cg' [1], from the ``gordon_taylor`` block or a ``freeze_concentrate`` block of the data file
+    (an agent may have a published Tg' without published Gordon-Taylor constants)."""
+
+    temperature: float  # K
+    mass_fraction: float | None
+    source: str
+
+
+@dataclass(frozen=True)
 class AgentData:
     """One entry of ``planner/data/agents.yaml`` in SI units."""
 
@@ -144,6 +155,7 @@ class AgentData:
     eutectic_temperature: float | None  # K
     eutectic_mass_percent: float | None = None  # liquid composition at the eutectic with ice
     sources: dict[str, str] = field(default_factory=dict)
+    freeze_concentrate: FreezeConcentrateGlass | None = None  # Tg' and Cg', with or without Gordon-Taylor data
 
     def apparent_molar_volume(self, molality: ArrayLike) -> np.ndarray:
         """Apparent molar volume at 20 C [m3/mol]."""
@@ -164,6 +176,31 @@ def _source(entry: dict, key: str, where: str) -> str:
     value = entry.get(key)
     cite(value)  # an unknown key is an error naming the nearest one
     return value
+
+
+def parse_freeze_concentrate(name: str, entry: dict, glass: GlassData | None) -> FreezeConcentrateGlass | None:
+    """Tg' and Cg' of one ``agents.yaml`` entry: from its Gordon–Taylor block, else its ``freeze_concentrate``.
+
+    A Tg' outside 150–273.15 K or a Cg' outside 0–1 is an :class:`InputError` naming the entry.
+    """
+    if glass is not None and glass.tg_prime is not None:
+        tg, w, source, where = glass.tg_prime, glass.tg_prime_mass_fraction, glass.tg_prime_source, "gordon_taylor"
+    elif entry.get("freeze_concentrate"):
+        fc = entry["freeze_concentrate"]
+        tg, w, source, where = fc.get("tg_prime_k"), fc.get("tg_prime_mass_fraction"), fc.get("source"), \
+            "freeze_concentrate"
+    else:
+        return None
+    field_path = f"agents.yaml {name}.{where}"
+    if not isinstance(tg, (int, float)) or isinstance(tg, bool) or not 150.0 < tg < 273.15:
+        raise InputError(f"{field_path}.tg_prime_k", tg, "a glass transition between 150 and 273.15 K")
+    if w is not None and (not isinstance(w, (int, float)) or isinstance(w, bool) or not 0.0 < w < 1.0):
+        raise InputError(f"{field_path}.tg_prime_mass_fraction", w, "a solute mass fraction between 0 and 1, or null")
+    try:
+        cite(source)
+    except InputError as exc:
+        raise InputError(f"{field_path}.source", source, exc.allowed, exc.hint) from None
+    return FreezeConcentrateGlass(float(tg), None if w is None else float(w), source)
 
 
 @lru_cache(maxsize=1)
@@ -195,6 +232,7 @@ def _data() -> tuple[WaterData, dict[str, AgentData]]:
                 g.get("tg_prime_k"), g.get("tg_prime_mass_fraction"),
                 _source(g, "tg_prime_source", name) if g.get("tg_prime_source") else None,
             )
+        freeze_concentrate = parse_freeze_concentrate(name, e, glass)
         eutectic = e.get("eutectic")
         sources = {k: _source(e, k, name) for k in e if k.endswith("_source")}
         sources["osmotic_virial"] = _source(v, "source", name)
@@ -229,6 +267,7 @@ def _data() -> tuple[WaterData, dict[str, AgentData]]:
             eutectic_temperature=eutectic["temperature_k"] if eutectic else None,
             eutectic_mass_percent=eutectic["mass_percent"] if eutectic else None,
             sources=sources,
+            freeze_concentrate=freeze_concentrate,
         )
         if eutectic:
             _source(eutectic, "source", name)
@@ -1121,6 +1160,11 @@ def glass_transition(comp: Composition) -> GlassTransition:
     NaCl of saline) are left out with an ``indicative`` flag; otherwise the temperature is None with a
     ``missing-data`` flag. Sucrose: T_g,s = 335 K, k = 4.7 [ref:roos-karel-1991];
     Tg' = 227 K at 81 % sucrose [ref:roos-karel-1991b] (both from memory).
+
+    Tg' (the glass of the maximally freeze-concentrated liquid, with its solute mass fraction Cg') is
+    given for a solution of one agent in water wherever it is published, also when Gordon–Taylor
+    constants are not: glycerol Tg' = 164 K at Cg' = 0.76 [ref:inaba-andersson-2007]. The solution's own
+    T_g then stays None (flag ``missing-data``) while ``tg_prime`` is given.
     """
     water = water_data()
     fractions = comp.mass_fractions()
@@ -1151,11 +1195,11 @@ def glass_transition(comp: Composition) -> GlassTransition:
         temperature = num / den
     tg_prime = None
     tg_prime_w = None
-    with_data = [a for a in comp.agents if a not in missing and fractions[a] > 0]
-    if len(with_data) == 1 and agent_data(with_data[0]).glass.tg_prime is not None and not missing:
-        g = agent_data(with_data[0]).glass
-        tg_prime, tg_prime_w = g.tg_prime, g.tg_prime_mass_fraction
-        parameters["tg_prime_source"] = g.tg_prime_source
+    present = [a for a in comp.agents if fractions[a] > 0]
+    fc = agent_data(present[0]).freeze_concentrate if len(present) == 1 else None
+    if fc is not None:
+        tg_prime, tg_prime_w = fc.temperature, fc.mass_fraction
+        parameters["tg_prime_source"] = fc.source
     elif comp.agents:
         flags.append(Flag("missing-data", "Tg' (maximally freeze-concentrated glass) is tabulated only for "
                           "single agents with data; not given for this solution", "gordon-taylor-1952"))

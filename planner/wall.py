@@ -11,6 +11,7 @@ Materials come from planner/data/materials.yaml, each with its source.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
@@ -36,6 +37,9 @@ class Material:
     yield_basis: str
     source: str
     note: str = ""
+    density: float | None = None  # kg/m3
+    specific_heat: float | None = None  # J/(kg K)
+    thermal_source: str | None = None
 
 
 @lru_cache(maxsize=1)
@@ -54,6 +58,9 @@ def materials() -> dict[str, Material]:
             e["yield_basis"],
             e["source"],
             e.get("note", ""),
+            None if e.get("density_kg_per_m3") is None else float(e["density_kg_per_m3"]),
+            None if e.get("specific_heat_j_per_kg_k") is None else float(e["specific_heat_j_per_kg_k"]),
+            e.get("thermal_source"),
         )
     return out
 
@@ -334,3 +341,41 @@ def required_outer_radius(
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(q > 0, (1.0 / np.where(q > 0, q, 1.0)) ** power, np.inf)
     return _out(a * ratio)
+
+
+def chamber_body(shape: str, inner_radius: float, outer_radius: float, cavity_volume: float) -> tuple[float, float]:
+    """Volume of wall material [m3] and outer surface [m2] of a chamber, for its heat capacity and cooling.
+
+    Parameters
+    ----------
+    shape : str
+        ``cylinder`` or ``sphere``.
+    inner_radius, outer_radius : float
+        Bore radius a and outer radius b [m], a < b.
+    cavity_volume : float
+        Cavity volume [m3], above 0.
+
+    Returns
+    -------
+    tuple of float
+        (wall volume [m3], outer surface area [m2]).
+
+    Notes
+    -----
+    Cylinder: the cavity is a cylinder of radius a and length L = V / (pi a^2); the body a cylinder of
+    radius b and length L + 2 (b - a) - closed ends as thick as the side wall, an assumption (closures,
+    threads and seals are not modelled) - so the wall volume is pi b^2 (L + 2 (b - a)) - V and the outer
+    surface 2 pi b (L + 2 (b - a)) + 2 pi b^2. Sphere: 4/3 pi (b^3 - a^3) and 4 pi b^2.
+    Geometry only; heat capacity = density x specific heat x wall volume [ref:incropera-dewitt].
+    """
+    a, b, v = float(inner_radius), float(outer_radius), float(cavity_volume)
+    if not 0 < a < b:
+        raise InputError("container.outer_diameter_mm", 2e3 * b, f"above the inner diameter ({2e3 * a:g} mm)")
+    if not v > 0:
+        raise InputError("container.cavity_ml", v * 1e6, "above 0 mL")
+    if shape == "sphere":
+        return 4.0 / 3.0 * math.pi * (b**3 - a**3), 4.0 * math.pi * b**2
+    if shape != "cylinder":
+        raise InputError("container.shape", shape, "cylinder or sphere")
+    length = v / (math.pi * a**2) + 2.0 * (b - a)
+    return math.pi * b**2 * length - v, 2.0 * math.pi * b * length + 2.0 * math.pi * b**2

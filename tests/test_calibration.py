@@ -218,3 +218,29 @@ def test_not_a_calibration_file_is_refused(tmp_path):
     p.write_text("format: something else\n")
     with pytest.raises(InputError, match="calibration file"):
         cal.load_calibration(p)
+
+
+def _assay_text(groups, liquidus_c=-0.5, hours=24.0):
+    """Invented hold assay: (temperature C, frozen, unfrozen) per group, 1 mL each, no freezing times."""
+    rows = [f"# liquidus_c: {liquidus_c}", HEADER]
+    k = 0
+    for temp_c, n_frozen, n_unfrozen in groups:
+        for i in range(n_frozen + n_unfrozen):
+            k += 1
+            rows.append(hold_row(f"g{k}", temp_c, hours, i < n_frozen))
+    return "\n".join(rows)
+
+
+def test_a_fit_that_misses_a_group_says_so():
+    # Invented assay no rate model that rises with supercooling can describe: half of the warm and the cold
+    # holds froze, none of the 20 in between. The exact two-sided binomial test (common practice, no source)
+    # of 0 of 20 against the fitted fraction is far below 5 %: the fit must be flagged.
+    c = cal.fit_assay(cal.parse_assay(_assay_text([(-4.5, 10, 10), (-6.5, 0, 20), (-8.5, 10, 10)])))
+    misfit = [f for f in c.flags if "does not describe" in f.message]
+    assert misfit and "-6.50 C" in misfit[0].message
+
+
+def test_a_fit_that_describes_its_groups_is_not_flagged():
+    # invented assay whose fraction frozen rises smoothly with supercooling: no group departs at the 5 % level
+    c = cal.fit_assay(cal.parse_assay(_assay_text([(-4.5, 2, 18), (-6.5, 6, 14), (-8.5, 14, 6)])))
+    assert not [f for f in c.flags if "does not describe" in f.message]

@@ -310,3 +310,19 @@ def test_recalescence_beyond_nucleation_line_is_flagged():
         heat = np.trapezoid(wi.liquid_heat_capacity(grid, 101325.0), grid)
         expected = heat / float(wi.latent_heat(tm, 101325.0))
     assert r.ice_fraction_of_water == pytest.approx(expected, rel=1e-3)
+
+
+def test_open_state_of_a_fitted_solution_sits_on_its_liquidus():
+    # Open container: the remaining liquid's osmolality is the one whose liquidus is T (the
+    # freeze-concentration curve, [ref:rubinsky-perez-carlson-2005]); same answer as the solution module's
+    # own curve. Glycerol's fitted virial set turns over at high concentration, which once sent the
+    # bisection past the turnover.
+    from planner.isochoric import liquid_from_composition, open_state
+    from planner.solution import composition, freeze_concentration, osmolality_at_freezing_point
+
+    comp = composition("isotonic-saline", [("glycerol", "mass_percent", 10.0)])
+    temps = np.array([269.15, 263.15, 253.15])
+    st = open_state(temps, liquid_from_composition(comp))
+    np.testing.assert_allclose(st.liquid_osmolality, osmolality_at_freezing_point(temps), rtol=1e-6)
+    fc = freeze_concentration(comp, temps)
+    np.testing.assert_allclose(st.ice_fraction_of_water, fc.ice_fraction_of_water, atol=1e-4)

@@ -175,3 +175,13 @@ def test_column_curves_are_charted_against_temperature(page):
     assert render.axis_title("pressure_mpa") == "pressure [MPa]"
     assert render.axis_title("liquid_osmolality_osmol_per_kg") == "liquid osmolality [osmol/kg]"
     assert render.axis_title("ratio") == "ratio"
+
+
+def test_pdf_chart_heading_stays_with_its_first_chart(pdf_text):
+    # a section heading alone at the foot of a page reads as an empty section (common practice, no source)
+    assert heading_kept_with_first_chart(pdf_text)
+
+
+def heading_kept_with_first_chart(pages):
+    with_heading = [i for i, t in enumerate(pages) if "\nCharts\n" in f"\n{t}\n"]
+    return bool(with_heading) and "Margins between their thresholds" in pages[with_heading[0]]

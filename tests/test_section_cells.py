@@ -178,3 +178,29 @@ def test_unseeded_ramp_to_minus_80_runs_the_mazur_model():
     # faster cooling in the trade-off leaves more supercooling
     sc = [row["max_intracellular_supercooling_k"] for row in out.report.tradeoff]
     assert all(b > a for a, b in zip(sc, sc[1:], strict=False))
+
+
+def test_cooling_rate_with_ice_outside_is_taken_after_the_seed():
+    # Mazur 1963 [ref:mazur-1963]: the water loss is driven by extracellular ice, so the cooling rate that
+    # matters is the one after ice forms outside - here the 0.5 C/min ramp after the seed, not the 2 C/min
+    # ramp before it. In a stirred bath the thin straw tracks the ramps within seconds (lumped model,
+    # time constant rho c (V/A) / h of about 1 s, Incropera & DeWitt [ref:incropera-dewitt]).
+    from planner.sections import thermal
+
+    text = BASE.replace("{steps}", SLOW_FREEZE).replace("{cells}", OOCYTE)
+    p = parse_protocol(text.replace("schedule:", "environment: {h_w_per_m2_k: 2000}\nschedule:", 1), "test")
+    out = section.build(p, {"thermal": thermal.build(p, {})})
+    assert out.report.cooling_rate_c_per_min == pytest.approx(0.5, rel=0.05)
+
+
+def test_cooling_rate_ignores_a_later_pass_through_the_band():
+    # cooling through the band, a long hold, then warming back through it: only the cooling pass counts
+    knots = np.array([0.0, 4800.0, 4800.0 + 86400.0, 4800.0 * 1.25 + 86400.0])
+    t = np.linspace(0.0, knots[-1], 20001)
+    temp = np.interp(t, knots, [273.15, 233.15, 233.15, 273.15])  # 0.5 C/min down, 2 C/min back up
+    thermal = SimpleNamespace(state=SimpleNamespace(time=t, coldest_temperature_history=temp))
+    steps = """    - {ramp_to_c: -40.0, rate_c_per_min: 0.5}
+    - {hold_h: 24}
+    - {ramp_to_c: 0.0, rate_c_per_min: 2.0}"""
+    out = section.build(protocol(steps=steps), {"thermal": thermal})
+    assert out.report.cooling_rate_c_per_min == pytest.approx(0.5, rel=1e-3)

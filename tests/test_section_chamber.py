@@ -200,3 +200,33 @@ def test_margins_judged_in_the_assessment():
     states = {m["name"]: m for m in d["margin_states"]}
     assert states["chamber_worst_case_safety_factor"]["state"] == "do-not-proceed"  # 0.39 < 1.0
     assert states["chamber_safety_factor"]["state"] == "fine"  # 6.9 > 3.0
+
+
+def test_sphere_chamber_is_described_as_a_sphere():
+    # a thick sphere has no ends and no axis: its two tangential stresses are equal, the bore value being
+    # p (b^3 + 2 a^3) / (2 (b^3 - a^3)) (Timoshenko & Goodier [ref:lame-timoshenko], thick sphere)
+    text = RIGID.replace("  material: stainless-316", "  material: titanium-6al-4v\n  shape: sphere")
+    _, out = _build(text)
+    r = out.report
+    assert "closed ends" not in r.compliance_basis and "sphere" in r.compliance_basis
+    assert r.axial_stress_mpa is None
+    p = r.pressure_if_frozen_mpa - 0.101325
+    a, b = 0.0125, 0.0225
+    assert r.hoop_stress_mpa == pytest.approx(p * (b**3 + 2 * a**3) / (2 * (b**3 - a**3)), rel=2e-3)
+
+
+def test_a_needed_wall_near_the_elastic_limit_says_so():
+    # Lamé [ref:lame-timoshenko]: bore von Mises of a thick sphere = 3 p b^3 / (2 (b^3 - a^3)) -> 1.5 p as b grows.
+    # Invented variation: titanium sphere of isotonic saline at -20 C (about 184 MPa): a factor of 3 on
+    # 828 MPa needs 1.5 p ~ 276 MPa, just inside the limit, so the wall needed is huge.
+    text = (RIGID.replace("  material: stainless-316", "  material: titanium-6al-4v\n  shape: sphere")
+            .replace("ramp_to_c: -4.0", "ramp_to_c: -20.0")
+            .replace("  cryoprotectants:\n    - {agent: glycerol, mass_percent: 10.0}\n", ""))
+    assert "agent: glycerol" not in text
+    _, out = _build(text)
+    assert out.report.pressure_if_frozen_mpa == pytest.approx(184, abs=3)
+    planned = next(n for n in out.report.outer_diameter_needed_mm if n["case"] == "planned")
+    assert planned["outer_diameter_mm"] > 4 * 25.0
+    assert "elastic limit" in planned["note"]
+    worst = next(n for n in out.report.outer_diameter_needed_mm if n["case"] == "worst_case")
+    assert worst["outer_diameter_mm"] < 4 * 25.0 and worst["note"] == ""

@@ -150,3 +150,71 @@ def test_deep_cooling_is_cut_and_flagged():
     assert "until the sample first reaches" in r.covers
     # pure water passing -38 C freezes homogeneously before the cut at 40 K of supercooling
     assert r.freeze_probability == pytest.approx(1.0)
+
+
+def test_rigid_chamber_counts_every_millilitre_of_liquid_in_the_cavity():
+    # In a sealed rigid chamber the whole cavity is filled with the solution; ice nucleating anywhere in it
+    # pressurises the chamber, so the volume at risk is the cavity's liquid, not the biological sample's
+    # share (common practice, no source). The demo: 2 mL sample in a 20 mL cavity, no gas.
+    protocol = load_protocol(RIGID)
+    out = section.build(protocol, {})
+    r = out.report
+    assert r.parameters["volume_m3"] == pytest.approx(20e-6, rel=1e-9)
+    assert "20 mL" in r.summary
+    # Vali 1971 [ref:vali-1971] volume scaling of a stochastic volume rate: f_V = 1 - (1 - f_ref)^(V/V_ref)
+    from planner import nucleation as nuc
+
+    st = out.state
+    ref = nuc.freeze_probability(st.time, st.temperature, 2e-6, st.model, st.liquidus).probability
+    assert st.result.probability == pytest.approx(1 - (1 - ref) ** 10, rel=1e-6)
+
+
+def test_rigid_chamber_with_trapped_gas_has_a_liquid_gas_interface():
+    # invented variation of the demo chamber: 0.5 mL of air sealed in with the liquid
+    text = RIGID.read_text().replace("trapped_gas_ml: 0.0", "trapped_gas_ml: 0.5")
+    r = build(text).report
+    assert r.parameters["volume_m3"] == pytest.approx(19.5e-6, rel=1e-9)
+    # the gas meets the liquid at least across the 25 mm bore: pi (12.5 mm)^2 (geometry, no source)
+    assert r.parameters["interface_area_m2"] >= 3.14159 * 0.0125**2 * 0.999
+
+
+@pytest.mark.parametrize(("p", "words"), [(0.998, "99.8 %"), (0.9999, "above 99.9 %"), (0.5, "50 %"),
+                                          (0.0123, "1.2 %")])
+def test_percentages_read_as_percentages(p, words):
+    # plain reading of a probability (common practice, no source): never "1e+02 %"
+    assert section._percent(p) == words
+
+
+def test_what_it_takes_does_not_blame_the_ramps_for_the_sample_catching_up():
+    # Invented demo: 1 mL in still air lags a 0.2 C/min ramp by ~4 K (time constant ~25 min), so the sample
+    # spends the first couple of hours of the hold getting to -4 C. With the bath hold cut to 1 min the sample
+    # never even reaches its liquidus - the ramps alone carry no risk - so a note must not say they do.
+    from planner.sections import solution as solution_section
+    from planner.sections import thermal
+
+    def run(text):
+        p = parse_protocol(text, "demo")
+        ctx = {"solution": solution_section.build(p, {})}
+        ctx["thermal"] = thermal.build(p, ctx)
+        return section.build(p, ctx).report
+
+    text = OPEN.read_text()
+    short = run(text.replace("hold_h: 72", "hold_min: 1"))
+    assert short.freeze_probability == 0.0
+    notes = " ".join(run(text).what_it_takes_notes)
+    assert "ramps and other steps alone" not in notes
+    assert "catching up" in notes
+
+
+def test_supercooling_policy_does_not_stop_a_published_sealed_hold():
+    # Huang, Yarmush, Usta 2018 [ref:huang-2018]: sealed water up to 100 mL kept supercooled at -20 C for up to
+    # 100 days - 20 K below the liquidus. The supercooling margin must not call that depth "do not proceed" on
+    # its own (the freeze probability is the margin that judges the risk); deeper than the sealed preset's
+    # range it may.
+    from planner import nucleation as nuc
+    from planner.assessment import default_policy, judge
+
+    entry = default_policy()["supercooling_k"]
+    assert judge(20.0, entry["better"], entry["watch"], entry["stop"]) == "watch"
+    deepest = nuc.preset("sealed-interface").supercooling_range.high
+    assert judge(deepest + 0.5, entry["better"], entry["watch"], entry["stop"]) == "do-not-proceed"

@@ -184,3 +184,51 @@ def test_sphere_and_slab_samples():
     assert slab.report.geometry == "slab"
     for out in (sphere, slab):
         assert out.report.max_lag_k is not None and out.report.holds[0]["reached"]
+
+
+def test_rigid_chamber_wall_left_out_is_flagged():
+    # The sample sits in a sealed chamber full of liquid inside a thick metal wall; both add heat capacity
+    # and resistance between bath and sample that the sample-only model leaves out, so the lag shown is a
+    # lower bound (common practice, no source). Invented demo scenario.
+    from pathlib import Path
+
+    from planner.protocol import load_protocol
+
+    protocol = load_protocol(Path(__file__).resolve().parents[1] / "protocols" / "rigid-chamber-hold.yaml")
+    out = thermal.build(protocol, {})
+    msgs = [f.message for f in out.report.flags if f.code == "indicative"]
+    assert any("chamber" in m and "wall" in m and "lower bound" in m for m in msgs)
+    open_vial = thermal.build(_protocol(VIAL, COOL_HOLD_WARM), {})
+    assert not any("chamber" in f.message for f in open_vial.report.flags)
+
+
+def test_rigid_chamber_lumped_lag_by_hand():
+    # The demo chamber (invented): 17-4PH, bore 25 mm, outside 55 mm, 20 mL cavity, stirred bath h = 150.
+    # By hand, lumped capacitance (Incropera & DeWitt [ref:incropera-dewitt], Sec. 5.3; steel rho c from
+    # Table A.1, from memory: 7780 kg/m3 x 460 J/(kg K)):
+    #   cavity length 20e-6 / (pi 0.0125^2) = 40.74 mm; body length 40.74 + 2 x 15 = 70.74 mm
+    #   wall volume pi 0.0275^2 x 0.07074 - 20e-6 = 148.1 mL -> 7780 x 460 x 148.1e-6 = 529.9 J/K
+    #   liquid 20 mL x 999.4 x 4236 = 84.7 J/K; outer area 2 pi 0.0275 x 0.07074 + 2 pi 0.0275^2 = 169.7 cm2
+    #   tau = 614.6 / (150 x 0.01697) = 241 s = 4.02 min
+    #   warming ramp 2 C/min for 4 min: lag = B tau (1 - exp(-t/tau)) = 0.0333 x 241 x 0.630 = 5.07 K
+    from pathlib import Path
+
+    from planner.protocol import load_protocol
+
+    protocol = load_protocol(Path(__file__).resolve().parents[1] / "protocols" / "rigid-chamber-hold.yaml")
+    out = thermal.build(protocol, {})
+    r = out.report
+    assert r.chamber_heat_capacity_j_per_k == pytest.approx(614.6, rel=5e-3)
+    assert r.chamber_time_constant_min == pytest.approx(4.02, rel=5e-3)
+    assert r.chamber_max_lag_k == pytest.approx(5.07, rel=5e-3)
+    assert r.chamber_max_lag_k > r.max_lag_k
+    margin = next(m for m in out.margins if m.name == "thermal_lag_k")
+    assert margin.value == r.chamber_max_lag_k and "rigid chamber" in margin.detail
+    lo, hi = r.chamber_max_lag_range_k
+    assert lo < r.chamber_max_lag_k < hi
+
+
+def test_lumped_lag_function_scalar_limits():
+    # long ramp: the lag tends to B tau; short ramp: to B t (Incropera & DeWitt [ref:incropera-dewitt], lumped)
+    assert thermal.chamber_lumped_lag(0.01, 1e6, 100.0) == pytest.approx(1.0, rel=1e-9)
+    assert thermal.chamber_lumped_lag(0.01, 1.0, 1e6) == pytest.approx(0.01, rel=1e-5)

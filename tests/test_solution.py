@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 from importlib import resources
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -136,7 +137,7 @@ HANDBOOK_CASES = [
     ("ethylene-glycol", 20.0, 7.93, "crc-handbook"),
     ("ethylene-glycol", 40.0, 23.84, "crc-handbook"),
     ("ethylene-glycol", 60.0, 51.23, "crc-handbook"),
-    # CRC (crc-handbook), glycerol and sucrose, from memory; fit data
+    # CRC (crc-handbook), glycerol and sucrose, as read in the 102nd ed. table (crc-handbook-102); fit data
     ("glycerol", 10.0, 2.32, "crc-handbook"),
     ("glycerol", 20.0, 5.46, "crc-handbook"),
     ("glycerol", 40.0, 15.5, "crc-handbook"),
@@ -155,6 +156,59 @@ HANDBOOK_CASES = [
 def test_freezing_point_against_handbook(agent, mass_percent, published, source):
     cite(source)
     assert depression_at(agent, mass_percent) == pytest.approx(published, abs=tolerance(published))
+
+
+# CRC Handbook 102nd ed., "Concentrative properties of aqueous solutions", freezing-point depression [K]
+# at the tabulated mass percent (crc-handbook-102), published to 0.01 K. These rows were NOT used in any
+# fit (tests/data/fit_solution_coefficients.py, NOT_FITTED): independent checks of the fitted sets.
+CRC_102_NOT_FITTED = (
+    [pytest.param("glycerol", w, dt, id=f"crc-102-glycerol-{w:g}") for w, dt in
+     [(2, 0.41), (5, 1.08), (8, 1.81), (16, 4.09), (24, 7.01), (28, 8.77), (32, 10.74), (36, 12.96)]]
+    + [pytest.param("sucrose", w, dt, id=f"crc-102-sucrose-{w:g}") for w, dt in
+       [(2, 0.11), (5, 0.29), (15, 1.01), (24, 1.89), (30, 2.64), (34, 3.27), (38, 4.02), (42, 4.93)]]
+    + [pytest.param("ethylene-glycol", w, dt, id=f"crc-102-eg-{w:g}") for w, dt in
+       [(5, 1.58), (14, 5.01), (28, 13.03), (32, 16.23), (48, 33.3), (52, 38.81), (56, 44.83)]]
+    + [pytest.param("nacl", w, dt, id=f"crc-102-nacl-{w:g}") for w, dt in
+       [(0.1, 0.06), (15, 10.89), (21, 17.78), (22, 19.18), (23, 20.67)]]
+)
+
+
+@pytest.mark.parametrize(("agent", "mass_percent", "published"), CRC_102_NOT_FITTED)
+def test_freezing_point_against_crc_102_rows_not_fitted(agent, mass_percent, published):
+    # CRC Handbook 102nd ed. (crc-handbook-102), rows outside the fit data; the issue's tolerance
+    cite("crc-handbook-102")
+    assert depression_at(agent, mass_percent) == pytest.approx(published, abs=tolerance(published))
+
+
+def test_glycerol_and_sucrose_fit_data_are_the_crc_102_values():
+    # The fit data once marked "from memory" are the 102nd ed. rows (crc-handbook-102): glycerol 10, 20,
+    # 40 % -> 2.32, 5.46, 15.5 K; sucrose 10, 20, 40 % -> 0.63, 1.47, 4.45 K. Guard against drift of the
+    # fit script's table.
+    import importlib.util
+
+    path = Path(__file__).parent / "data" / "fit_solution_coefficients.py"
+    spec = importlib.util.spec_from_file_location("fit_solution_coefficients", path)
+    fit = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(fit)
+    assert {(10, 2.32), (20, 5.46), (40, 15.5)} <= set(fit.HANDBOOK["glycerol"])
+    assert {(10, 0.63), (20, 1.47), (40, 4.45)} <= set(fit.HANDBOOK["sucrose"])
+    assert not set(fit.NOT_FITTED["glycerol"]) & set(fit.HANDBOOK["glycerol"])
+
+
+def test_dmso_against_the_manufacturers_freezing_curve():
+    # Gaylord Chemical bulletin 101 (2005), graph 9 (gaylord-dmso-2005): 37 % (w/w) DMSO freezes at
+    # -13 F = -25 C, a graph reading (precision 1.5 K, recorded in agents.yaml). The only outside check
+    # of the published B = 0.108 kg/mol (elliott-2007, from memory), so the set stays flagged indicative.
+    raw = load_yaml(resources.files("planner").joinpath("data/agents.yaml").read_text("utf-8"))
+    checks = raw["agents"]["dmso"]["outside_checks"]
+    assert checks, "the DMSO entry records its outside check"
+    for check in checks:
+        cite(check["source"])
+        published = -check["freezing_point_c"]
+        assert depression_at("dmso", check["mass_percent"]) == pytest.approx(published, abs=check["precision_k"])
+    assert (-13.0 - 32.0) / 1.8 == pytest.approx(-25.0, abs=0.05)  # the reading in C
+    props = solution_properties(composition("water", [("dmso", "mass_percent", 10.0)]))
+    assert any(f.code == "indicative" and "dmso" in f.message for f in props.flags)
 
 
 @pytest.mark.parametrize(("molality", "published"), [(0.05, 0.18), (0.10, 0.35), (0.25, 0.85), (0.50, 1.68),
@@ -455,6 +509,43 @@ def test_sucrose_glass_transition_gordon_taylor():
     g = glass_transition(Composition(("sucrose",), (m,)))
     assert g.temperature == pytest.approx(T_M - 46.0, abs=5.0)
     assert g.tg_prime == pytest.approx(T_M - 46.0, abs=1.0)
+
+
+def test_glycerol_tg_prime_from_inaba_andersson():
+    # Inaba & Andersson 2007 (inaba-andersson-2007), abstract: the maximally freeze-concentrated glycerol
+    # solution, 76 % (w/w), has its glass transition at 164 K. Given for glycerol in water alone, while
+    # the Gordon-Taylor Tg of the solution as prepared stays missing (no published constants at hand)
+    g = glass_transition(composition("water", [("glycerol", "mass_percent", 40.0)]))
+    assert g.tg_prime == pytest.approx(164.0, abs=0.5)
+    assert g.tg_prime_mass_fraction == pytest.approx(0.76, abs=0.005)
+    assert g.parameters["tg_prime_source"] == "inaba-andersson-2007"
+    assert g.temperature is None
+    assert any(f.code == "missing-data" and "glycerol" in f.message for f in g.flags)
+    props = solution_properties(composition("water", [("glycerol", "mass_percent", 40.0)]))
+    assert props.glass_transition_prime == pytest.approx(164.0, abs=0.5) and props.glass_transition is None
+    # the same source: glycerol-water glasses extrapolate to 135 K for water; the planner's water Tg
+    # (136 K, johari-1987, from memory) agrees within 1 K
+    assert water_data().glass_transition == pytest.approx(135.0, abs=1.0)
+    # a second solute changes Tg': not given for glycerol in saline
+    in_saline = glass_transition(composition("isotonic-saline", [("glycerol", "mass_percent", 40.0)]))
+    assert in_saline.tg_prime is None
+    assert any(f.code == "missing-data" and "Tg'" in f.message for f in in_saline.flags)
+
+
+@pytest.mark.parametrize(("block", "field"), [
+    ({"tg_prime_k": 300.0, "tg_prime_mass_fraction": 0.7, "source": "inaba-andersson-2007"}, "tg_prime_k"),
+    ({"tg_prime_k": "cold", "tg_prime_mass_fraction": 0.7, "source": "inaba-andersson-2007"}, "tg_prime_k"),
+    ({"tg_prime_k": 170.0, "tg_prime_mass_fraction": 76.0, "source": "inaba-andersson-2007"},
+     "tg_prime_mass_fraction"),
+    ({"tg_prime_k": 170.0, "tg_prime_mass_fraction": 0.7, "source": "inaba-anderson-2007"}, "source"),
+])
+def test_bad_freeze_concentrate_data_is_refused_naming_the_entry(block, field):
+    from planner.solution import parse_freeze_concentrate
+
+    with pytest.raises(InputError) as info:
+        parse_freeze_concentrate("glycerol", {"freeze_concentrate": block}, None)
+    assert field in info.value.field
+    assert parse_freeze_concentrate("dmso", {"freeze_concentrate": None}, None) is None
 
 
 def test_glass_transition_missing_data_is_flagged():

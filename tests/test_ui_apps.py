@@ -10,7 +10,28 @@ import numpy as np
 import pytest
 
 from planner.errors import InputError
-from tests.test_ui_planner import DEMO, ROOT, stand_in_evaluate
+from planner.protocol import parse_protocol, protocol_to_yaml
+from planner.ui.planner_model import Evaluation
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = "supercooled-open-vial"
+
+
+def stand_in_evaluate():
+    """Test-only assessment: the real loader, then one margin equal to the sample volume in mL (no physics)."""
+
+    def evaluate(document, name, base_dir):
+        protocol = parse_protocol(protocol_to_yaml(document), name, base_dir=base_dir)
+        volume_ml = protocol.sample.volume * 1e6
+        state = "fine" if volume_ml < 5 else "watch" if volume_ml < 10 else "do-not-proceed"
+        report = {"schema": "test", "title": protocol.title, "flags": [], "cautions": [],
+                  "margin_states": [{"name": "volume_test", "label": "Test margin", "value": volume_ml, "unit": "mL",
+                                     "watch": 5.0, "stop": 10.0, "better": "lower", "policy": "default",
+                                     "state": state}],
+                  "verdict": {"state": "fine", "reasons": []}}
+        return Evaluation(protocol, None, report)
+
+    return evaluate
 
 # --- the homogeneous-nucleation limit drawn on the schedule chart -------------------------------------------
 

@@ -403,3 +403,50 @@ def test_review_suggestions_from_the_widgets():
     app.model.go("review")
     app.review.suggest_button.click()
     assert "half the sample volume" in app.review.suggestions.value
+
+
+def test_opening_another_protocol_over_typed_changes_asks_first():
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    assert not app.model.edited
+    _field(app, "sample.volume_ml").input.value = "3"
+    assert app.model.edited
+    app.start_choice.value = "demo:rigid-chamber-hold"
+    app.open_button.click()
+    assert app.model.value("sample.volume_ml") == 3 and "click Open again" in app.message.value
+    app.open_button.click()
+    assert app.model.source_name == "rigid-chamber-hold" and not app.model.edited
+
+
+@pytest.mark.slow
+def test_a_key_the_planner_asks_for_gets_a_box_of_its_own():
+    """The real assessment asks for a DMSO permeability the chosen cell type lacks: a box appears for it."""
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / "slow-freeze-dmso.yaml", inline=True)
+    cells = app.step_views["cells"]
+    cells.include.value = True
+    assert app.model.draft.has("cells")
+    preset = next(fv for fv in cells.fields if fv.path == "cells.preset")
+    preset.input.value = preset.input.options[1][1]  # the first cell type the data file knows
+    wanted = [p for p in app.model.field_errors if p.startswith("cells.permeability_um_per_s.")]
+    assert wanted, app.model.field_errors  # this cell type has no permeability for DMSO
+    box = next(fv for fv in cells.fields if fv.path == wanted[0])
+    assert box.input.description == "Permeability of dmso (µm/s)" and "dmso" in box.error.value
+    box.input.value = "1.5"
+    assert app.model.value(wanted[0]) == 1.5
+    assert wanted[0] not in app.model.field_errors
+
+
+def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
+    """While the notebook runs no page is connected: the first assessment and chart are made in line (no
+    thread touches widgets before a page is there), the workers take over afterwards."""
+    from planner.ui.planner_app import PlannerApp
+
+    monkeypatch.setenv("COLDMARGIN_PROTOCOL", str(ROOT / "protocols" / f"{DEMO}.yaml"))
+    app = PlannerApp()
+    assert app.model.current and "<svg" in app.step_views["sample"].chart.value
+    assert not app.model.worker.inline
+    assert not any(v.chart_worker.inline for v in app.step_views.values())

@@ -126,6 +126,25 @@ def test_quantity_without_published_rows_is_missing_not_invented():
     assert [f.code for f in r.flags] == ["missing-data"]
 
 
+@pytest.mark.parametrize("agent", ["propylene-glycol", "glycerol"])
+def test_warming_rates_not_read_in_a_source_stay_missing(agent):
+    # No critical warming rate of propylene glycol or glycerol was read in a source for the table (its
+    # header lists the gap): the planner says missing-data at every concentration, scalar and array
+    for w in (40.0, [40.0, 50.0]):
+        r = critical_warming_rate(agent, w)
+        assert np.all(np.isnan(r.rate))
+        assert [f.code for f in r.flags] == ["missing-data"]
+
+
+def test_dmso_has_no_rows_and_is_not_invented():
+    # No DMSO critical rate was read in a source for the table: DMSO is not a table agent, and asking for
+    # it is an error naming the agents that have rows (the vitrification section turns this into a
+    # missing-data flag and asks for the user's measured rate)
+    assert "dmso" not in known_agents()
+    with pytest.raises(InputError, match="agent"):
+        critical_cooling_rate("dmso", 40.0)
+
+
 def test_approximate_rows_make_the_result_indicative():
     assert "indicative" in [f.code for f in critical_cooling_rate("glycerol", 47.0).flags]
     assert "indicative" not in [f.code for f in critical_warming_rate("ethylene-glycol", 47.0).flags]

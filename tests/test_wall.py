@@ -163,3 +163,23 @@ def test_materials_file(key, modulus_gpa, yield_mpa):
     assert 0.2 < m.poisson_ratio < 0.4
     assert m.source in bibliography()
     assert m.yield_basis
+
+
+def test_chamber_body_geometry_by_hand():
+    # geometry (no source needed beyond the volume and area of a cylinder and a sphere, common practice)
+    # cylinder: a = 12.5 mm, b = 27.5 mm, 20 mL: body length 40.74 + 30 = 70.74 mm (ends as thick as the side)
+    v, area = wall.chamber_body("cylinder", 0.0125, 0.0275, 20e-6)
+    assert v == pytest.approx(148.07e-6, rel=1e-3)
+    assert area == pytest.approx(169.75e-4, rel=1e-3)
+    # sphere: 4/3 pi (b^3 - a^3), 4 pi b^2 with a = 10 mm, b = 20 mm
+    v, area = wall.chamber_body("sphere", 0.010, 0.020, 4.18879e-6)
+    assert v == pytest.approx(29.3215e-6, rel=1e-5)
+    assert area == pytest.approx(50.2655e-4, rel=1e-5)
+    with pytest.raises(InputError, match="container.outer_diameter_mm"):
+        wall.chamber_body("cylinder", 0.02, 0.01, 20e-6)
+
+
+def test_materials_carry_heat_capacity_data():
+    for m in wall.materials().values():
+        assert m.density and 2000 < m.density < 9000 and m.specific_heat and 400 < m.specific_heat < 1000
+        assert m.thermal_source == "incropera-dewitt"

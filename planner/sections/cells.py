@@ -33,6 +33,7 @@ from planner import cells as cellmodel
 from planner.errors import ModelRangeError
 from planner.protocol import CELSIUS_OFFSET, Protocol, Step
 from planner.results import Flag, Result
+from planner.schedule import segments
 from planner.sections import MarginValue, SectionOutput
 
 TRADEOFF_RATES_C_PER_MIN = (0.1, 0.3, 1.0, 3.0, 10.0, 30.0, 100.0)
@@ -135,8 +136,13 @@ def _freezing_ramp(protocol: Protocol, liquidus: float) -> Step | None:
     return None
 
 
-def _sample_rate(context: dict[str, SectionOutput], liquidus: float) -> float | None:
-    """Mean cooling rate [K/s] of the sample's coldest point over the 10 K below the liquidus."""
+def _sample_rate(context: dict[str, SectionOutput], liquidus: float, t_from: float = 0.0) -> float | None:
+    """Mean cooling rate [K/s] of the sample's coldest point on its first pass through the 10 K below the liquidus.
+
+    Only the history from ``t_from`` [s] on counts (the start of the ramp on which ice grows outside the
+    cells), and only the first continuous pass down through the band: a hold inside it or
+    a later warming back through it is not cooling with ice outside [ref:mazur-1963].
+    """
     thermal = context.get("thermal")
     state = getattr(thermal, "state", None) if thermal is not None else None
     t = getattr(state, "time", None)
@@ -144,10 +150,19 @@ def _sample_rate(context: dict[str, SectionOutput], liquidus: float) -> float | 
     if t is None or temp is None:
         return None
     t, temp = np.asarray(t, dtype=float), np.asarray(temp, dtype=float)
-    inside = np.nonzero((temp <= liquidus) & (temp >= liquidus - 10.0))[0]
-    if inside.size < 2 or t[inside[-1]] <= t[inside[0]]:
+    later = t >= t_from
+    t, temp = t[later], temp[later]
+    inside = (temp <= liquidus) & (temp >= liquidus - 10.0)
+    if not inside.any():
         return None
-    rate = (temp[inside[0]] - temp[inside[-1]]) / (t[inside[-1]] - t[inside[0]])
+    first = int(np.argmax(inside))
+    # the pass ends where the sample leaves the band or stops cooling
+    stop = first
+    while stop + 1 < t.size and inside[stop + 1] and temp[stop + 1] <= temp[stop]:
+        stop += 1
+    if stop == first or t[stop] <= t[first]:
+        return None
+    rate = (temp[first] - temp[stop]) / (t[stop] - t[first])
     return float(rate) if rate > 0 else None
 
 
@@ -265,8 +280,10 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         report.cooling_note = ("no slow freezing with ice outside in the schedule (no seed step, no ramp to -20 C "
                                "or colder before any plunge): the Mazur model does not apply")
     else:
-        rate = _sample_rate(context, liquidus)
-        report.cooling_rate_from = "sample's coldest point near the liquidus (heat-transfer model)"
+        ramp_seg = next(g for g in segments(protocol.schedule) if g.step_index == ramp.index)
+        rate = _sample_rate(context, liquidus, ramp_seg.t_start)
+        report.cooling_rate_from = (f"sample's coldest point on schedule.steps[{ramp.index}], first 10 K below the "
+                                    "liquidus (heat-transfer model; the latent heat of the sample's own ice left out)")
         if rate is None:
             rate = ramp.rate
             report.cooling_rate_from = f"schedule.steps[{ramp.index}].rate_c_per_min (bath program)"

@@ -33,6 +33,10 @@ from planner.sections import MarginValue, SectionOutput
 
 # Default targets for the outer diameter a wall needs (the watch thresholds of planner/data/policy.yaml)
 PLANNED_TARGET = ("chamber_safety_factor", 3.0)
+# outer/inner ratio past which the needed wall is reported as near the elastic limit: the Lamé bore von Mises
+# stress goes as 1/(1 - (a/b)^2) (cylinder) or 1/(1 - (a/b)^3) (sphere), so at b/a = 4 it is within 7 % and
+# 2 % of its infinite-wall value [ref:lame-timoshenko]
+THICK_WALL_RATIO = 4.0
 WORST_CASE_TARGET = ("chamber_worst_case_safety_factor", 1.5)
 AMBIENT_PRESSURE = wi.STANDARD_PRESSURE  # Pa outside the chamber, and the fill pressure
 CURVE_POINTS = 21
@@ -216,7 +220,9 @@ def _rigid(protocol: Protocol, comp, coldest: float, basis: str) -> SectionOutpu
         beta, beta_basis = float(c.cavity_compliance), "cavity_compliance_per_gpa given in the protocol"
     else:
         beta = float(wall.cavity_compliance(c.shape, a, b, mat))
-        beta_basis = f"Lamé {c.shape} of {mat.key}, closed ends (wall only; closures and seals not included)"
+        body = "cylinder of" if c.shape == "cylinder" else "thick sphere of"
+        ends = ", closed ends" if c.shape == "cylinder" else ""
+        beta_basis = f"Lamé {body} {mat.key}{ends} (wall only; closures and seals not included)"
     gas_fraction = c.trapped_gas_volume / c.cavity_volume
     liquid = _liquid(comp)
     v_s, m_s = iso.solute_volume_and_mass(comp)
@@ -246,10 +252,13 @@ def _rigid(protocol: Protocol, comp, coldest: float, basis: str) -> SectionOutpu
     for case, pressure, (name, default) in (("planned", p, PLANNED_TARGET), ("worst_case", p_worst, WORST_CASE_TARGET)):
         target = _target(protocol, name, default)
         r_out = float(wall.required_outer_radius(c.shape, max(pressure - AMBIENT_PRESSURE, 0.0), a, mat.yield_strength, target))
+        note = "" if np.isfinite(r_out) else ("no wall thickness of this material reaches the target (elastic "
+                                               "limit); a stronger material or a smaller bore is needed")
+        if np.isfinite(r_out) and r_out > THICK_WALL_RATIO * a:
+            note = (f"a wall more than {THICK_WALL_RATIO:g} times the bore: close to the elastic limit, where more "
+                    "thickness buys little strength; a stronger material or a smaller bore is the practical way")
         needed.append({"case": case, "target_safety_factor": target,
-                       "outer_diameter_mm": _r(2e3 * r_out, 4) if np.isfinite(r_out) else None,
-                       "note": "" if np.isfinite(r_out) else "no wall thickness of this material reaches the target "
-                       "(elastic limit); a stronger material or a smaller bore is needed"})
+                       "outer_diameter_mm": _r(2e3 * r_out, 4) if np.isfinite(r_out) else None, "note": note})
     open_cmp = None
     if liquid is not None and st.frozen:
         from planner.solution import freeze_concentration, osmolality
@@ -302,7 +311,7 @@ def _rigid(protocol: Protocol, comp, coldest: float, basis: str) -> SectionOutpu
         compliance_basis=beta_basis,
         trapped_gas_ml=_r(c.trapped_gas_volume * 1e6, 4),
         hoop_stress_mpa=_r(stress.hoop / 1e6, 4),
-        axial_stress_mpa=_r(stress.axial / 1e6, 4),
+        axial_stress_mpa=_r(stress.axial / 1e6, 4) if c.shape == "cylinder" else None,  # a sphere has no axis
         von_mises_mpa=_r(stress.von_mises / 1e6, 4),
         safety_factor=_r(sf, 3),
         worst_case={

@@ -140,6 +140,35 @@ def interface_area(protocol: Protocol) -> float:
     return s.surface_area
 
 
+def liquid_at_risk(protocol: Protocol) -> tuple[float, float, float, str]:
+    """The liquid in which ice can nucleate: volume [m3], liquid-gas interface [m2], wetted wall [m2], basis.
+
+    An open container: the sample itself (its free surface from :func:`interface_area` when exposed, its
+    other faces wetted). A sealed rigid chamber is filled with the solution, and ice nucleating anywhere
+    in it pressurises the chamber: the whole cavity's liquid counts (cavity less trapped gas), its wall is
+    the bore and the end faces (a cylinder of the bore diameter) or the sphere, and trapped gas meets the
+    liquid over at least the larger of the bore's cross-section and a bubble's surface.
+    """
+    c = protocol.container
+    if c.kind == "rigid" and c.cavity_volume:
+        gas = c.trapped_gas_volume or 0.0
+        liquid = c.cavity_volume - gas
+        bubble = math.pi ** (1 / 3) * (6 * gas) ** (2 / 3) if gas > 0 else 0.0
+        if c.shape == "sphere":
+            d = c.inner_diameter or (6 * c.cavity_volume / math.pi) ** (1 / 3)
+            wetted = math.pi * d**2
+            free = bubble
+        else:
+            d = c.inner_diameter or protocol.sample.diameter or (4 * c.cavity_volume / math.pi) ** (1 / 3)
+            length = c.cavity_volume / (math.pi * d**2 / 4)
+            wetted = math.pi * d * length + math.pi * d**2 / 2
+            free = max(bubble, math.pi * d**2 / 4) if gas > 0 else 0.0
+        return liquid, free, max(wetted - free, 0.0), "the chamber's whole cavity of liquid (sealed rigid chamber)"
+    s = protocol.sample
+    free = interface_area(protocol) if c.interface == "exposed" else 0.0
+    return s.volume, free, max(s.surface_area - free, 0.0), "the sample"
+
+
 def _seed_time(protocol: Protocol) -> float | None:
     for seg in segments(protocol.schedule):
         if seg.kind == "seed":
@@ -162,13 +191,9 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     time, temperature, history_word = _history(protocol, context, flags)
     model = _model(protocol, flags)
     interfacial = nuc.DEFAULT_INTERFACIAL
-    volume = protocol.sample.volume
-    area = interface_area(protocol) if model.interface is not None else 0.0
-    # wetted wall: the sample's surface less its free liquid-air surface when exposed
-    wall = 0.0
-    if model.wall is not None:
-        free = interface_area(protocol) if protocol.container.interface == "exposed" else 0.0
-        wall = max(protocol.sample.surface_area - free, 0.0)
+    volume, free, wetted, basis = liquid_at_risk(protocol)
+    area = free if model.interface is not None else 0.0
+    wall = wetted if model.wall is not None else 0.0
 
     seed_at = _seed_time(protocol)
     coldest_allowed = liquidus - nuc.MAX_SUPERCOOLING
@@ -198,7 +223,8 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     report = NucleationReport(
         model=f"{model.label}; homogeneous: {'Koop-Murray 2016' if nuc.is_pure_water(liquidus) else 'Koop et al. 2000'}",
         source=model.source,
-        parameters={"liquidus_k": liquidus, "volume_m3": volume, "interface_area_m2": area, "wall_area_m2": wall,
+        parameters={"liquidus_k": liquidus, "volume_m3": volume, "volume_basis": basis,
+                    "interface_area_m2": area, "wall_area_m2": wall,
                     "nucleation_preset_or_file": model.name, "interval": "5th-95th percentile of the draws"},
         nucleation_model=model.name, nucleation_kind=model.kind, temperature_history=history_word, covers=covers,
         liquidus_c=_round(liquidus - nuc.CELSIUS, 5), coldest_temperature_c=_round(coldest - nuc.CELSIUS, 5),
@@ -275,7 +301,9 @@ def _percent(p: float | None) -> str:
         return "n/a"
     if p < 1e-4:
         return "below 0.01 %"
-    return f"{100 * p:.2g} %"
+    if p > 0.999:
+        return "above 99.9 %"
+    return f"{100 * p:.3g} %" if p >= 0.1 else f"{100 * p:.2g} %"
 
 
 def _summary(r: NucleationReport, protocol: Protocol) -> str:
@@ -283,10 +311,10 @@ def _summary(r: NucleationReport, protocol: Protocol) -> str:
     words = "at most" if r.freeze_probability_is_upper_bound else "about"
     if not r.freeze_probability_is_upper_bound and (r.freeze_probability or 0.0) < 1e-4:
         words = ""
-    text = (f"With {protocol.sample.volume * 1e6:.3g} mL down to {r.coldest_temperature_c:.2f} C, the chance of ice "
+    text = (f"With {r.parameters['volume_m3'] * 1e6:.3g} mL down to {r.coldest_temperature_c:.2f} C, the chance of ice "
             f"is {(words + ' ') if words else ''}{_percent(r.freeze_probability)} (90 % interval {_percent(lo)} to {_percent(hi)}), "
             f"using {r.nucleation_model}; this is a planning estimate, not a guarantee.")
     if r.longest_hold_h_for_target is not None and r.main_hold_c is not None:
-        text += (f" To keep the upper end at or below {_percent(r.target_probability)}, hold at most "
-                 f"{r.longest_hold_h_for_target:.3g} h at {r.main_hold_c:.2f} C.")
+        text += (f" To keep the upper end at or below {_percent(r.target_probability)}, keep the sample at most "
+                 f"{r.longest_hold_h_for_target:.3g} h at {r.main_hold_c:.2f} C (once it has caught up with the bath).")
     return text

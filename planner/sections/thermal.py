@@ -10,6 +10,7 @@ chamber and vitrification sections read.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -38,7 +39,10 @@ class ThermalReport(Result):
     |sample - bath| over the sample during ramps; ``time_to_within_0p5k_min``: the slowest hold's time
     from its start until every point is within 0.5 K (``None`` when a hold is never reached; see
     ``holds``). Every ``..._range_...`` pair is [at the high end of the h range, at the low end]: the
-    fast and the slow case. Temperatures in C, times in minutes.
+    fast and the slow case. Temperatures in C, times in minutes. ``chamber_*`` (sealed rigid chambers
+    whose wall material has thermal data): the chamber and its liquid as one lumped body - heat capacity,
+    time constant C / (h A_outer) and the lag under each ramp before any seed step - a lower bound on how
+    far the contents lag the bath (see :func:`chamber_lumped_lag`).
     """
 
     geometry: str = ""
@@ -61,6 +65,10 @@ class ThermalReport(Result):
     environments: list[dict[str, Any]] = field(default_factory=list)
     ramps: list[dict[str, Any]] = field(default_factory=list)
     holds: list[dict[str, Any]] = field(default_factory=list)
+    chamber_heat_capacity_j_per_k: float | None = None
+    chamber_time_constant_min: float | None = None
+    chamber_max_lag_k: float | None = None
+    chamber_max_lag_range_k: list[float] | None = None
 
 
 @dataclass
@@ -202,6 +210,61 @@ def _material(protocol: Protocol, flags: list[Flag]) -> ht.Material:
     return material
 
 
+def _chamber_flag(protocol: Protocol, flags: list[Flag]) -> None:
+    """A sample inside a sealed rigid chamber: say that the chamber itself is not in the thermal model."""
+    c = protocol.container
+    if c.kind != "rigid":
+        return
+    parts = []
+    if c.cavity_volume and c.cavity_volume > protocol.sample.volume * 1.001:
+        parts.append(f"{(c.cavity_volume - protocol.sample.volume) * 1e6:.3g} mL of liquid around the sample")
+    if c.inner_diameter and c.outer_diameter:
+        parts.append(f"a {(c.outer_diameter - c.inner_diameter) / 2 * 1e3:.3g} mm thick wall")
+    what = " and ".join(parts) if parts else "its wall"
+    flags.append(Flag(
+        "indicative",
+        f"the sample is solved on its own with h at its surface; the rigid chamber ({what}) adds heat capacity "
+        "and resistance between the bath and the sample that this model leaves out, so the lags and hold "
+        "times shown are a lower bound: in a thick metal chamber the sample lags the bath more, and takes "
+        "longer to reach each hold (chamber_* give the chamber and its liquid as one lumped body, itself a "
+        "lower bound for the contents)",
+        "incropera-dewitt",
+    ))
+
+
+def chamber_heat_capacity(protocol: Protocol, liquid: ht.Material) -> tuple[float, float] | None:
+    """Heat capacity [J/K] of a rigid chamber with its liquid, and its outer surface [m2]; None if unknown.
+
+    Wall: density x specific heat x wall volume of :func:`planner.wall.chamber_body`; contents: the
+    cavity's liquid at the thermal section's water properties (trapped gas neglected).
+    """
+    from planner import wall
+
+    c = protocol.container
+    if c.kind != "rigid" or not (c.cavity_volume and c.inner_diameter and c.outer_diameter and c.material):
+        return None
+    mat = wall.material(c.material)
+    if mat.density is None or mat.specific_heat is None:
+        return None
+    wall_volume, outer_area = wall.chamber_body(c.shape, c.inner_diameter / 2, c.outer_diameter / 2, c.cavity_volume)
+    liquid_volume = c.cavity_volume - (c.trapped_gas_volume or 0.0)
+    return mat.density * mat.specific_heat * wall_volume + liquid.volumetric_heat_capacity * liquid_volume, outer_area
+
+
+def chamber_lumped_lag(rate: float, duration: float, time_constant: float) -> float:
+    """Lag [K] of a lumped body behind a bath ramping at ``rate`` [K/s] for ``duration`` [s], starting level.
+
+    Notes
+    -----
+    Lumped capacitance, dT/dt = (T_bath - T)/tau with T_bath = T0 - B t: the lag is
+    B tau (1 - exp(-t/tau)), largest at the end of the ramp [ref:incropera-dewitt]. For a chamber the
+    liquid inside lags the wall further (its own conduction), so this is a lower bound for the contents.
+    """
+    if time_constant <= 0 or duration <= 0:
+        return 0.0
+    return float(rate * time_constant * -math.expm1(-duration / time_constant))
+
+
 def _model_for(body: ht.Body, material: ht.Material, hs: np.ndarray) -> tuple[str, float]:
     bi = float(np.max(ht.biot_number(hs, body.characteristic_length, material.conductivity)))
     return ("lumped" if bi < LUMPED_BIOT_LIMIT else "conduction"), bi
@@ -245,6 +308,7 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     envs = _environments(protocol, segs, flags)
     material = _material(protocol, flags)
     flags.extend(material.flags)
+    _chamber_flag(protocol, flags)
 
     knots = [0.0] + [s.t_end for s in segs]
     out_t = ht.refined_times(np.concatenate((knots, [bath.duration])), MAX_OUTPUT_STEP)
@@ -333,6 +397,23 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
 
     first = envs[0]
     tau = float(ht.lumped_time_constant(material.volumetric_heat_capacity, body.volume, first.h, body.area))
+
+    chamber = chamber_heat_capacity(protocol, material)
+    chamber_tau = chamber_lag = chamber_lag_range = None
+    if chamber is not None:
+        capacity, outer_area = chamber
+        chamber_tau = capacity / (first.h * outer_area)
+        lags = {"nominal": [], "high": [], "low": []}
+        for seg in segs:
+            if seg.kind != "ramp" or after_seed(seg.t_start):
+                continue
+            duration = seg.t_end - seg.t_start
+            rate = abs(seg.temperature_end - seg.temperature_start) / duration
+            for which, h in (("nominal", first.h), ("high", first.h_high), ("low", first.h_low)):
+                lags[which].append(chamber_lumped_lag(rate, duration, capacity / (h * outer_area)))
+        if lags["nominal"]:
+            chamber_lag = round(max(lags["nominal"]), 3)
+            chamber_lag_range = [round(max(lags["high"]), 3), round(max(lags["low"]), 3)]
     report = ThermalReport(
         model=hist.model,
         source="incropera-dewitt",
@@ -365,14 +446,23 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         ],
         ramps=ramps,
         holds=holds,
+        chamber_heat_capacity_j_per_k=None if chamber is None else round(chamber[0], 1),
+        chamber_time_constant_min=None if chamber_tau is None else round(chamber_tau / 60.0, 2),
+        chamber_max_lag_k=chamber_lag,
+        chamber_max_lag_range_k=chamber_lag_range,
     )
     margins = []
     if max_lag is not None:
-        margins.append(MarginValue(
-            "thermal_lag_k", "Sample lag behind the bath under ramps", max_lag, "K",
-            f"largest |sample - bath| over the sample during ramps, {first.label.lower()} "
-            f"h = {first.h:g} W/(m2 K); {max_lag_range[0]:.2f}-{max_lag_range[1]:.2f} K over the h range",
-        ))
+        detail = (f"largest |sample - bath| over the sample during ramps, {first.label.lower()} "
+                  f"h = {first.h:g} W/(m2 K); {max_lag_range[0]:.2f}-{max_lag_range[1]:.2f} K over the h range")
+        value = max_lag
+        if chamber_lag is not None and chamber_lag > max_lag:
+            value = chamber_lag
+            detail = (f"the rigid chamber with its liquid, as one lumped body (time constant {chamber_tau / 60:.3g} "
+                      f"min at h = {first.h:g} W/(m2 K)), lags the bath by {chamber_lag:.2f} K under the ramps "
+                      f"({chamber_lag_range[0]:.2f}-{chamber_lag_range[1]:.2f} K over the h range), more than the "
+                      f"sample alone ({max_lag:.2f} K); the contents lag further")
+        margins.append(MarginValue("thermal_lag_k", "Sample lag behind the bath under ramps", value, "K", detail))
     state = ThermalState(
         time=hist.time,
         bath_temperature=hist.bath_temperature,

@@ -81,7 +81,9 @@ class CompareApp:
     """
 
     def __init__(self, demos: list[str] | None = None, model: CompareModel | None = None, inline: bool = False):
-        self.model = model or CompareModel(demos, inline=inline)
+        # built in line (no page is connected while the notebook runs); threads from the first change on
+        threaded_later = model is None and not inline
+        self.model = model or CompareModel(demos, inline=True if threaded_later else inline)
         inline = self.model.inline
         self.chart_worker = Worker(inline=inline)
         self.map_worker = Worker(inline=inline)
@@ -120,6 +122,11 @@ class CompareApp:
         self._build_columns()
         self.model.observe(lambda _ch: self.refresh(), names="revision")
         self.refresh()
+        if threaded_later:
+            self.model.inline = False
+            for m in self.model.scenarios:
+                m.worker = Worker(inline=False)
+            self.chart_worker, self.map_worker = Worker(inline=False), Worker(inline=False)
 
     def _large(self, on: bool) -> None:
         (self.widget.add_class if on else self.widget.remove_class)("cm-large")

@@ -18,6 +18,10 @@ UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_c_per_s", "°C/s"),
     ("_k_per_s", "K/s"),
     ("_w_per_m2_k", "W/(m² K)"),
+    ("_w_per_m_k", "W/(m K)"),
+    ("_j_per_kg_k", "J/(kg K)"),
+    ("_kg_per_m3", "kg/m³"),
+    ("_osmol_per_kg", "osmol/kg"),
     ("_um_per_min_atm", "µm/(min atm)"),
     ("_kj_per_mol", "kJ/mol"),
     ("_per_gpa", "1/GPa"),
@@ -115,6 +119,10 @@ FIELD_TEXT: dict[str, FieldText] = {
 }
 
 
+# Short stems that read badly as words.
+STEM_WORDS: dict[str, str] = {"h": "Heat-transfer coefficient", "lp": "Hydraulic conductivity Lp"}
+
+
 def pattern_of(path: str) -> str:
     """``a.b[3].c`` → ``a.b[].c`` (the key of :data:`FIELD_TEXT`)."""
     return re.sub(r"\[\d+\]", "[]", path)
@@ -139,13 +147,19 @@ CONCENTRATION_WORDS: dict[str, str] = {
 
 def label_for(path: str) -> str:
     """The label a field shows: plain words and the unit in brackets, e.g. "Volume (mL)"."""
-    key = re.sub(r"\[\d+\]$", "", path).rsplit(".", 1)[-1]
+    parts = re.sub(r"\[\d+\]$", "", path).split(".")
+    key = parts[-1]
+    if len(parts) > 1 and not unit_of(key)[1] and unit_of(parts[-2])[1] and key not in CONCENTRATION_WORDS:
+        # a per-agent mapping: permeability_um_per_s.dmso → "Permeability of dmso (µm/s)"
+        stem, unit = unit_of(parts[-2])
+        words = STEM_WORDS.get(stem) or stem.replace("_", " ").strip().capitalize()
+        return f"{words} of {key} ({unit})"
     if key in CONCENTRATION_WORDS:
         return f"Concentration ({CONCENTRATION_WORDS[key]})"
     stem, unit = unit_of(key)
     text = FIELD_TEXT.get(pattern_of(path), FieldText()).label
     if text is None:
-        text = stem.replace("_", " ").strip().capitalize()
+        text = STEM_WORDS.get(stem) or stem.replace("_", " ").strip().capitalize()
     return f"{text} ({unit})" if unit else text
 
 

@@ -29,6 +29,7 @@ from planner.ui.widgets import add_classes, button, download_link, dropdown, err
 from planner.ui.work import Worker
 
 NONE_WORD = "(not given)"
+UPDATING = '<div class="cm-working-note cm-chart-updating">Updating the chart for the latest result…</div>'
 
 
 class FieldView:
@@ -233,7 +234,33 @@ class StepView:
             self.include.value = self.app.model.draft.has(self.spec.optional_path)
         self.build_inputs()
 
+    def _add_fields_for_errors(self) -> None:
+        """A key the loader asks for that this step has no box for (a permeability for a newly added agent,
+        say) gets a box of its own, labelled from the key, under the step's inputs."""
+        model = self.app.model
+        have = {fv.path for fv in self.fields} | {fv.path for rv in self.rows for fv in rv.fields}
+        row_paths = {rv.spec.path for rv in self.rows}
+        added = False
+        for path in model.field_errors:
+            if path in have or model.step_of_error(path) != self.spec.name:
+                continue
+            if any(path == r or path.startswith(r + "[") for r in row_paths) or path.endswith("]"):
+                continue  # rows show their own errors
+            value = model.value(path)
+            if isinstance(value, (dict, list)):
+                continue
+            from planner.ui.steps import _numberish
+
+            fv = FieldView(self.app, registry.Field(path, "number" if _numberish(path) else "text"), path)
+            self.fields.append(fv)
+            self.inputs.children = (*self.inputs.children, fv.box)
+            added = True
+        if added:
+            for fv in self.fields:
+                fv.refresh_state()
+
     def refresh_state(self) -> None:
+        self._add_fields_for_errors()
         for fv in self.fields:
             fv.refresh_state()
         for rv in self.rows:
@@ -255,8 +282,10 @@ class StepView:
         revision = model.result_revision
         self.chart_revision = revision
         snap = snapshot(model)
-        if model.evaluation is not None and not self.chart.value:
-            self.chart.value = '<div class="cm-chart cm-working-note">Drawing the chart…</div>'
+        if model.evaluation is not None:
+            # the chart on show belongs to the previous result until the new one is drawn: say so
+            shown = self.chart.value.split(UPDATING, 1)[-1]
+            self.chart.value = UPDATING + shown if shown else '<div class="cm-chart cm-working-note">Drawing the chart…</div>'
 
         def lost(exc: BaseException) -> None:
             self.chart_revision = -1
@@ -287,8 +316,14 @@ class PlannerApp:
 
     def __init__(self, protocol: str | os.PathLike | None = None, model: PlannerModel | None = None,
                  inline: bool = False):
-        self.model = model or PlannerModel(inline=inline)
+        # While the notebook runs no page is connected yet (always so in a pre-started kernel, and often
+        # with many viewers at once): widget updates sent from a worker thread then can leave the page
+        # blank. So the app is built, assessed and drawn in line; the worker threads take over afterwards,
+        # when every update answers a person's input on a connected page.
+        threaded_later = model is None and not inline
+        self.model = model or PlannerModel(inline=True if threaded_later else inline)
         self.syncing = False
+        self._confirm: str | None = None
         self._lock = threading.RLock()
         self.message = html_box("", "cm-app-message")
         self._build_header()
@@ -325,10 +360,10 @@ class PlannerApp:
         self._on_result(None)
         if os.environ.get("COLDMARGIN_LARGE_TYPE") == "1":
             self.large.value = True
-        if not self.model.worker.inline:
-            from planner.ui.svg import warm_up
-
-            threading.Thread(target=_quietly(warm_up), daemon=True).start()
+        if threaded_later:
+            self.model.worker = Worker(inline=False)
+            for view in self.step_views.values():
+                view.chart_worker = Worker(inline=False)
 
     # --- building ------------------------------------------------------------------------------------
 
@@ -399,6 +434,12 @@ class PlannerApp:
 
     def _open_start(self) -> None:
         choice = self.start_choice.value
+        if self.model.edited and self._confirm != choice:
+            self._confirm = choice
+            self._say("The protocol has changes that would be replaced. Download it first to keep them, "
+                      "or click Open again to replace it.")
+            return
+        self._confirm = None
         try:
             if choice == "blank":
                 self.model.start_blank()
@@ -507,12 +548,3 @@ class PlannerApp:
     def _repr_mimebundle_(self, **kwargs) -> Any:
         return self.widget._repr_mimebundle_(**kwargs)
 
-
-def _quietly(fn):
-    def run():
-        try:
-            fn()
-        except Exception:  # warming up is an optimisation only
-            pass
-
-    return run

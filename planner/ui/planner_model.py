@@ -164,6 +164,7 @@ class PlannerModel(traitlets.HasTraits):
         self.draft = Draft(document)
         self.base_dir = base_dir
         self.source_name = name
+        self._loaded = self.draft.document
         self._reset_results()
         self._changed()
 
@@ -178,8 +179,14 @@ class PlannerModel(traitlets.HasTraits):
         self.draft = Draft(skeleton)
         self.base_dir = Path.cwd()
         self.source_name = "blank"
+        self._loaded = self.draft.document
         self._reset_results()
         self._changed()
+
+    @property
+    def edited(self) -> bool:
+        """True when the draft differs from what was opened (replacing it would lose typed work)."""
+        return self.draft.document != getattr(self, "_loaded", {})
 
     def _reset_results(self) -> None:
         self.evaluation = None

@@ -159,6 +159,9 @@ class SignView:
         if model.report is None or not model.current:
             self.status.value = ("<p class='cm-message'>The assessment is not current: fix the fields marked "
                                  "in red before signing.</p>" if model.report else "")
+        elif model.verdict()[0] == "do-not-proceed":
+            self.status.value = ("<p class='cm-message'>The overall state is <b>do not proceed</b>. A signature "
+                                 "records the plan and its numbers as they are; it does not make the plan safe.</p>")
         else:
             self.status.value = ""
 

@@ -47,7 +47,9 @@ def _thin(n: int, most: int = 300) -> np.ndarray:
 def schedule_chart(time_h: Sequence[float], curves: dict[str, Sequence[float]], *,
                    liquidus_c: float | None = None, homogeneous_c: float | None = None,
                    probability_time_h: Sequence[float] | None = None,
-                   probability: Sequence[float] | None = None, title: str = "") -> alt.Chart:
+                   probability: Sequence[float] | None = None,
+                   probability_band: tuple[Sequence[float], Sequence[float]] | None = None,
+                   title: str = "") -> alt.Chart:
     """Temperatures against time with the liquidus and the homogeneous-nucleation limit drawn as lines,
     and the cumulative freeze probability below on the same time axis.
 
@@ -88,10 +90,21 @@ def schedule_chart(time_h: Sequence[float], curves: dict[str, Sequence[float]], 
     if probability_time_h is None or probability is None:
         return top
     prob_rows = _finite_rows(t=probability_time_h, p=probability)
-    bottom = alt.Chart(alt.Data(values=prob_rows)).mark_line(color=LIMIT, strokeWidth=2).encode(
+    highest = max([r["p"] for r in prob_rows] + [0.0])
+    layers_p: list[alt.Chart] = []
+    band_title = ""
+    if probability_band is not None:
+        band_rows = _finite_rows(t=probability_time_h, lo=probability_band[0], hi=probability_band[1])
+        highest = max([highest] + [r["hi"] for r in band_rows])
+        layers_p.append(alt.Chart(alt.Data(values=band_rows)).mark_area(color=LIMIT, opacity=0.18).encode(
+            x="t:Q", y="lo:Q", y2="hi:Q"))
+        band_title = " (band: 90 % interval)"
+    top_p = min(1.0, max(0.02, highest * 1.15))  # the axis follows the numbers; its top is written on it
+    layers_p.append(alt.Chart(alt.Data(values=prob_rows)).mark_line(color=LIMIT, strokeWidth=2).encode(
         x=alt.X("t:Q", title="time (h)"),
-        y=alt.Y("p:Q", title="P(frozen)", scale=alt.Scale(domain=[0, 1])),
-    ).properties(width=WIDTH, height=110, title="Cumulative probability that the sample has frozen")
+        y=alt.Y("p:Q", title="P(frozen)", scale=alt.Scale(domain=[0, top_p]))))
+    bottom = alt.layer(*layers_p).properties(
+        width=WIDTH, height=120, title="Cumulative probability that the sample has frozen" + band_title)
     return alt.vconcat(top, bottom)
 
 
@@ -274,7 +287,7 @@ def schedule_data(model) -> tuple[dict[str, Any] | None, str]:
                                                 points=60, draws=400)
         data["probability_time_h"] = (np.asarray(cum["time"]) / 3600.0).tolist()
         data["probability"] = np.asarray(cum["probability"]).tolist()
-        data["probability_upper"] = np.asarray(cum["upper"]).tolist()
+        data["probability_band"] = (np.asarray(cum["lower"]).tolist(), np.asarray(cum["upper"]).tolist())
         note = (note + " " if note else "") + ("Freeze probability: central estimate (line) of the nucleation "
                                                "model; its 95th percentile at the end is "
                                                f"{float(cum['upper'][-1]):.3g}.")
@@ -287,7 +300,7 @@ def _draw_schedule(model):
         return None, note
     return schedule_chart(data["time_h"], data["curves"], liquidus_c=data.get("liquidus_c"),
                           homogeneous_c=data.get("homogeneous_c"), probability_time_h=data.get("probability_time_h"),
-                          probability=data.get("probability")), note
+                          probability=data.get("probability"), probability_band=data.get("probability_band")), note
 
 
 def _draw_freezing_point(model):

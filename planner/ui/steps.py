@@ -292,8 +292,12 @@ def row_fields(rows: Rows, row: Any) -> tuple[Field, ...]:
 
 
 def _numberish(path: str) -> bool:
+    """True when the key (or, for a per-agent mapping such as ``permeability_um_per_s.dmso``, its parent)
+    carries a unit, so the box reads a number."""
     from planner.ui.fields import unit_of
 
-    key = path.rsplit(".", 1)[-1]
-    return bool(unit_of(key)[1]) or key in CONCENTRATION_UNITS
+    parts = path.split(".")
+    key = parts[-1]
+    parent = parts[-2] if len(parts) > 1 else ""
+    return bool(unit_of(key)[1]) or key in CONCENTRATION_UNITS or bool(unit_of(parent)[1])
 

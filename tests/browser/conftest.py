@@ -49,6 +49,8 @@ class Server:
     archive: Path
     key: Path
     log: Path
+    signer: str = SIGNER
+    passphrase: str = PASSPHRASE
 
     def url(self, notebook: str, query: str = "") -> str:
         extra = f"&{query}" if query else ""
@@ -129,8 +131,14 @@ def page(browser):
     context.close()
 
 
-def shot(page, name: str) -> Path:
-    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
-    path = SCREENSHOTS / f"{name}.png"
-    page.screenshot(path=str(path), full_page=True)
-    return path
+@pytest.fixture(scope="session")
+def shot():
+    """Save a full-page screenshot under test-output/screenshots/NAME.png (look at them after a run)."""
+
+    def take(page, name: str) -> Path:
+        SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+        path = SCREENSHOTS / f"{name}.png"
+        page.screenshot(path=str(path), full_page=True)
+        return path
+
+    return take
