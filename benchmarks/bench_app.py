@@ -192,7 +192,7 @@ def main() -> None:
         return
     cold_runs = 1 if args.quick else 3
     changes = 8 if args.quick else 20
-    viewers = 10
+    viewers = int(os.environ.get("BENCH_VIEWERS", "10"))
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
 

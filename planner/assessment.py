@@ -30,6 +30,8 @@ from planner.yamlio import load_yaml
 ASSESSMENT_SCHEMA = "coldmargin/assessment-1"
 SECTION_ORDER = ("solution", "thermal", "chamber", "nucleation", "cells", "vitrification", "freezing")
 STATES = ("fine", "watch", "do-not-proceed")
+# Margins that measure the risk of ice in a hold meant to stay liquid: not judged when ice is intended.
+LIQUID_HOLD_MARGINS = ("supercooling_k", "freeze_probability", "freeze_probability_upper")
 STATE_WORDS = {"fine": "fine", "watch": "watch", "do-not-proceed": "do not proceed", "not-judged": "not judged"}
 
 
@@ -192,8 +194,15 @@ def assess(protocol: Protocol, sections: tuple[str, ...] = SECTION_ORDER) -> Ass
             detail = "not judged: the protocol freezes or vitrifies on purpose; " + detail
         margin_values.append((MarginValue("supercooling_k", "Supercooling below the liquidus",
                                           round(float(freezing_point - coldest), 3), "K", detail), stays_liquid))
+    stays_liquid = _meant_to_stay_liquid(protocol, context)
     for output in context.values():
-        margin_values.extend((mv, True) for mv in output.margins)
+        for mv in output.margins:
+            judged = stays_liquid or mv.name not in LIQUID_HOLD_MARGINS
+            if not judged:
+                mv = MarginValue(mv.name, mv.label, mv.value, mv.unit,
+                                 "not judged: the protocol freezes or vitrifies on purpose, so ice before that "
+                                 "point is not the risk this margin measures" + (f"; {mv.detail}" if mv.detail else ""))
+            margin_values.append((mv, judged))
     margins = [_judge_margin(mv, protocol, judged) for mv, judged in margin_values]
 
     flags: list[Flag] = []
@@ -220,8 +229,8 @@ def _verdict(margins: list[Margin]) -> Verdict:
         return Verdict("watch", ["no margin could be judged for this protocol"])
     worst = max(judged, key=lambda m: STATES.index(m.state)).state
     reasons = [
-        f"{m.label}: {_fmt(m.value)} {m.unit} ({STATE_WORDS[m.state]}; watch at {_fmt(m.watch)}, "
-        f"stop at {_fmt(m.stop)})"
+        f"{m.label}: {_fmt(m.value)}{'' if m.unit == '1' else ' ' + m.unit} ({STATE_WORDS[m.state]}; "
+        f"watch at {_fmt(m.watch)}, stop at {_fmt(m.stop)})"
         for m in judged
         if m.state == worst
     ]

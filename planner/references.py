@@ -25,6 +25,8 @@ class Reference:
 
     def citation(self) -> str:
         """A one-line citation: authors (year) title. venue. doi."""
+        if self.key == "common-practice":
+            return "Common practice, no source"
         year = self.year if self.year is not None else "n.d."
         doi = f" doi:{self.doi}" if self.doi else ""
         return f"{self.authors} ({year}). {self.title}. {self.venue}.{doi}"

@@ -81,3 +81,17 @@ def test_supercooling_not_judged_when_ice_is_seeded():
     d = assess(load_protocol(SLOW)).to_dict()
     m = next(m for m in d["margin_states"] if m["name"] == "supercooling_k")
     assert m["state"] == "not-judged"
+
+
+def test_ice_risk_margins_not_judged_when_ice_is_intended():
+    # a slow-freezing protocol seeds ice on purpose: the chance of ice before the seed is reported, not judged
+    d = assess(load_protocol(SLOW)).to_dict()
+    states = {m["name"]: m for m in d["margin_states"]}
+    for name in ("freeze_probability", "freeze_probability_upper"):
+        assert states[name]["state"] == "not-judged" and "on purpose" in states[name]["detail"]
+
+
+def test_common_practice_citation_reads_plainly():
+    from planner.references import cite
+
+    assert cite("common-practice").citation() == "Common practice, no source"

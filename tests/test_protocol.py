@@ -116,7 +116,7 @@ def test_cylinder_whose_diameter_and_volume_disagree_is_refused():
 
 def test_hold_before_any_ramp_into_it_is_refused():
     text = edited(RIGID, "    - {ramp_to_c: -4.0, rate_c_per_min: 0.5}\n", "")
-    text = edited(text, "    - {ramp_to_c: 4.0, rate_c_per_min: 2.0}", "    - {ramp_to_c: -4.0, rate_c_per_min: 2.0}")
+    text = edited(text, "    - {ramp_to_c: 4.0, rate_c_per_min: 1.0}", "    - {ramp_to_c: -4.0, rate_c_per_min: 1.0}")
     err = error_of(text)
     assert str(err).startswith("schedule.steps[0].hold_h")
 

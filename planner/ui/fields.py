@@ -20,6 +20,7 @@ UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_w_per_m2_k", "W/(m² K)"),
     ("_w_per_m_k", "W/(m K)"),
     ("_j_per_kg_k", "J/(kg K)"),
+    ("_j_per_k", "J/K"),
     ("_kg_per_m3", "kg/m³"),
     ("_osmol_per_kg", "osmol/kg"),
     ("_um_per_min_atm", "µm/(min atm)"),
