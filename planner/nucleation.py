@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from importlib import resources
 
@@ -924,10 +924,20 @@ def _exposure(x0: np.ndarray, x1: np.ndarray, dt: np.ndarray, slope: ArrayLike) 
         return np.zeros(b.shape)
 
     def direct(bb: np.ndarray) -> np.ndarray:
-        u = bb[:, None] * (x1 - x0)[None, :]
+        # dt exp(b x0) phi(b (x1 - x0)), phi(u) = expm1(u)/u (1 + u/2 near 0), summed over the pieces;
+        # worked in place on two (draws x pieces) arrays
+        u = np.multiply.outer(bb, x1 - x0)
+        small = np.abs(u) < 1e-9
         with np.errstate(over="ignore", invalid="ignore"):
-            phi = np.where(np.abs(u) < 1e-9, 1.0 + u / 2, np.expm1(u) / np.where(u == 0, 1.0, u))
-            return (dt[None, :] * np.exp(bb[:, None] * x0[None, :]) * phi).sum(axis=1)
+            phi = np.expm1(u)
+            phi /= np.where(u == 0, 1.0, u)
+            if small.any():
+                phi[small] = 1.0 + u[small] / 2
+            weight = np.multiply.outer(bb, x0)
+            np.exp(weight, out=weight)
+            weight *= dt
+            weight *= phi
+            return weight.sum(axis=1)
 
     if b.size * x0.size <= 2_000_000 or b.size <= 257:
         return direct(b)
@@ -1073,6 +1083,35 @@ def risk_terms(time: ArrayLike, temperature: ArrayLike, model: NucleationModel, 
     t, y = _check_history(time, temperature)
     if not (0 < liquidus <= 280.0):
         raise InputError("liquidus", liquidus, "a temperature in K, above 0 and at most 280")
+    if not isinstance(seed, int | np.integer):  # a generator's own seeding: fresh draws every call
+        return _risk_terms_uncached(t, y, model, liquidus, interfacial, draws, seed)
+    # The same history, model and draws give the same terms: one assessment asks for them more than once
+    # (the freeze probability and what it takes). The key holds every input the terms depend on, in full:
+    # the arrays' bytes, the model's rate terms, range, label and source (frozen dataclasses), the
+    # interfacial model. The cached arrays are read-only; each caller gets its own RiskTerms and flag list.
+    key = (t.tobytes(), y.tobytes(), t.size, type(model), model.label, model.source, model.volume, model.interface,
+           model.wall, model.supercooling_range, float(liquidus), interfacial, int(draws), int(seed))
+    cached = _RISK_TERMS_MEMO.get(key)
+    if cached is None:
+        cached = _risk_terms_uncached(t, y, model, liquidus, interfacial, int(draws), int(seed))
+        for name in ("per_volume", "per_area", "homogeneous_per_volume", "per_wall_area"):
+            getattr(cached[0], name).flags.writeable = False
+        _RISK_TERMS_MEMO[key] = cached
+        while len(_RISK_TERMS_MEMO) > _RISK_TERMS_MEMO_SIZE:
+            _RISK_TERMS_MEMO.pop(next(iter(_RISK_TERMS_MEMO)))
+    else:
+        _RISK_TERMS_MEMO[key] = _RISK_TERMS_MEMO.pop(key)  # most recently used last
+    terms, flags = cached
+    return replace(terms), list(flags)
+
+
+_RISK_TERMS_MEMO: dict[tuple, tuple[RiskTerms, list[Flag]]] = {}
+_RISK_TERMS_MEMO_SIZE = 16
+
+
+def _risk_terms_uncached(t: np.ndarray, y: np.ndarray, model: NucleationModel, liquidus: float,
+                         interfacial: InterfacialEnergyModel, draws: int, seed: int) -> tuple[RiskTerms, list[Flag]]:
+    """:func:`risk_terms` on checked inputs, computed afresh."""
     rng = np.random.default_rng(seed)
     x = liquidus - y
     flags: list[Flag] = model.range_flags(x)
@@ -1121,23 +1160,39 @@ def risk_terms(time: ArrayLike, temperature: ArrayLike, model: NucleationModel, 
     return terms, flags
 
 
-def _constant_rate_terms(temperature: float, model: NucleationModel, liquidus: float,
-                         interfacial: InterfacialEnergyModel, draws: int, seed: int) -> RiskTerms:
-    """Hazards of one second at a constant temperature, drawn exactly as :func:`risk_terms` draws them."""
+def _constant_rate_draws(model: NucleationModel, interfacial: InterfacialEnergyModel, draws: int,
+                         seed: int) -> tuple[tuple[tuple[np.ndarray, np.ndarray] | None, ...], np.ndarray]:
+    """The Monte Carlo draws behind :func:`_constant_rate_terms`, in the order it takes them from the generator:
+    (ln_rate_ref, slope) of the volume, interface and wall terms (None where the model has no such term),
+    then the interfacial-energy factors. They do not depend on the temperature, so a search over hold
+    temperatures draws them once."""
     rng = np.random.default_rng(seed)
+    terms = tuple(None if term is None else term.draws(rng, draws) for term in (model.volume, model.interface, model.wall))
+    return terms, _sigma_factors(rng, draws, interfacial)
+
+
+def _constant_rate_terms(temperature: float, model: NucleationModel, liquidus: float,
+                         interfacial: InterfacialEnergyModel, draws: int, seed: int,
+                         drawn: tuple | None = None) -> RiskTerms:
+    """Hazards of one second at a constant temperature, drawn exactly as :func:`risk_terms` draws them.
+
+    ``drawn``: the output of :func:`_constant_rate_draws` for the same model, interfacial model, draws and
+    seed (drawn here when not given).
+    """
+    term_draws, s = _constant_rate_draws(model, interfacial, draws, seed) if drawn is None else drawn
     x = liquidus - temperature
 
-    def term_rate(term: RateTerm | None) -> tuple[np.ndarray, float]:
+    def term_rate(term: RateTerm | None, drawn_term) -> tuple[np.ndarray, float]:
         if term is None:
             return np.zeros(draws), 0.0
-        ln_rate, slope = term.draws(rng, draws)
+        ln_rate, slope = drawn_term
         if x <= 0:
             return np.zeros(draws), 0.0
         return np.exp(ln_rate + slope * (x - term.reference_supercooling)), float(term.rate(x))
 
-    per_volume, c_volume = term_rate(model.volume)
-    per_area, c_area = term_rate(model.interface)
-    per_wall, c_wall = term_rate(model.wall)
+    per_volume, c_volume = term_rate(model.volume, term_draws[0])
+    per_area, c_area = term_rate(model.interface, term_draws[1])
+    per_wall, c_wall = term_rate(model.wall, term_draws[2])
     hom = np.zeros(draws)
     c_hom = 0.0
     if x > 0:
@@ -1147,7 +1202,6 @@ def _constant_rate_terms(temperature: float, model: NucleationModel, liquidus: f
             beta = float(_homogeneous_barrier_kt(np.asarray(np.clip(temperature, 123.0, 273.16)), liquidus, interfacial))
             if not math.isfinite(beta) or rates.regime == 1:
                 beta = 0.0
-            s = _sigma_factors(rng, draws, interfacial)
             hom = c_hom * np.exp(beta * (1.0 - s**3))
     return RiskTerms(per_volume, per_area, hom, c_volume, c_area, c_hom, per_wall, c_wall)
 
@@ -1522,6 +1576,31 @@ def main_hold(time: ArrayLike, temperature: ArrayLike, tolerance: float = 0.05) 
     return best
 
 
+def _quantile_linear(values: np.ndarray, quantile: float) -> float:
+    """``numpy.quantile(values, quantile)`` (its default "linear" method), the same float, for 1-D float input.
+
+    The bisections of :func:`what_it_takes` take a quantile of the draws a hundred times or more; the
+    partition around the two order statistics is the only work done here. Order statistics do not depend on
+    how they are found, and the interpolation repeats numpy's own operations (Hyndman & Fan's definition 7:
+    virtual index (n - 1) q, g its fractional part, then a + (b - a) g, or b - (b - a)(1 - g) for g >= 0.5).
+    """
+    values = np.asarray(values, dtype=float).ravel()
+    n = values.size
+    if n == 0 or not (0.0 <= quantile <= 1.0):
+        return float(np.quantile(values, quantile))  # numpy's own answer or error
+    if np.isnan(values).any():
+        return float("nan")
+    virtual = (n - 1) * float(quantile)
+    if virtual >= n - 1:
+        return float(values.max())
+    previous = math.floor(virtual)
+    gamma = virtual - previous
+    part = np.partition(values, (previous, previous + 1))
+    a, b = float(part[previous]), float(part[previous + 1])
+    diff = b - a
+    return b - diff * (1.0 - gamma) if gamma >= 0.5 else a + diff * gamma
+
+
 def _bisect(f, lo: float, hi: float, iterations: int = 60) -> float:
     """Largest x in [lo, hi] with f(x) True, for f True at lo and monotone (True then False)."""
     for _ in range(iterations):
@@ -1579,7 +1658,7 @@ def what_it_takes(time: ArrayLike, temperature: ArrayLike, volume: float, model:
     basis = f"{quantile:.0%} quantile of the Monte Carlo draws"
 
     def q(hz: np.ndarray) -> float:
-        return float(np.quantile(hz, quantile))
+        return _quantile_linear(hz, quantile)
 
     full, _ = risk_terms(t, y, model, liquidus, interfacial, draws, seed)
 
@@ -1612,9 +1691,11 @@ def what_it_takes(time: ArrayLike, temperature: ArrayLike, volume: float, model:
     rest, _ = risk_terms(t_rest, y_rest, model, liquidus, interfacial, draws, seed)
     h_rest = rest.hazard(volume, interface_area, wall_area)
 
+    drawn = _constant_rate_draws(model, interfacial, draws, seed)  # the same draws at every temperature
+
     def hold_rate(temp: float) -> np.ndarray:
-        return _constant_rate_terms(temp, model, liquidus, interfacial, draws, seed).hazard(volume, interface_area,
-                                                                                            wall_area)
+        return _constant_rate_terms(temp, model, liquidus, interfacial, draws, seed, drawn).hazard(
+            volume, interface_area, wall_area)
 
     rate_here = hold_rate(t_hold)
     if q(h_rest) > h_target:

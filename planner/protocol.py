@@ -376,11 +376,13 @@ def build_protocol(doc: Any, base_dir: Path | None = None) -> Protocol:
 def _sample(node: Any) -> Sample:
     s = _Section(node, "sample", ("volume_ml", "geometry", "diameter_mm", "height_mm", "thickness_mm",
                                   "origin", "description"), ("volume_ml", "geometry"))
-    volume = s.number("volume_ml", 0.0, 5000.0, low_open=True) * 1e-6
+    # Smallest sizes: a picolitre droplet, a micrometre (smaller numbers are typing errors, and their
+    # squares and cubes underflow).
+    volume = s.number("volume_ml", 1e-9, 5000.0) * 1e-6
     geometry = s.word("geometry", GEOMETRIES)
-    diameter = s.number("diameter_mm", 0.0, 1000.0, low_open=True)
-    height = s.number("height_mm", 0.0, 1000.0, low_open=True)
-    thickness = s.number("thickness_mm", 0.0, 1000.0, low_open=True)
+    diameter = s.number("diameter_mm", 1e-3, 1000.0)
+    height = s.number("height_mm", 1e-3, 1000.0)
+    thickness = s.number("thickness_mm", 1e-3, 1000.0)
     origin = s.word("origin", ORIGINS)
     description = s.text("description", 2000)
     d = diameter * 1e-3 if diameter is not None else None

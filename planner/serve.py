@@ -7,8 +7,13 @@ What the server is started with, and why:
 - the port asked for, else the next free one (``--port 0`` takes any free port);
 - every notebook in ``notebooks/`` is reachable (the plan notebook links the others);
 - sources are stripped from the page and tracebacks are not sent to viewers;
-- idle kernels are culled (one kernel per open page, ~100–200 MB each), and an optional pool of
-  pre-started kernels makes pages open fast for a lab meeting;
+- idle kernels are culled (one kernel per open page, ~225 MB each), and an optional pool of
+  pre-started kernels makes pages open fast for a lab meeting. The trade-off of ``--pool N``: N kernels
+  run the plan notebook as the server starts (about 5 s of one core each, so start the server a minute
+  or two before the meeting) and hold N × ~225 MB while nobody looks; in return a page opens with its
+  first step already computed. Without a pool every viewer's kernel starts when the page is asked for,
+  and ten viewers at once share the machine's cores for all ten runs. Each used kernel is replaced in
+  the pool, so the pool keeps its size all meeting; for a meeting of ten, ``--pool 10``;
 - the Jupyter state folders point at a folder of the app's own (a temporary one unless
   ``--jupyter-dir`` names one), so the user's own Jupyter settings and extensions are neither read nor
   changed;
@@ -36,6 +41,7 @@ DEFAULT_PORT = 8866
 HOST = "127.0.0.1"
 STATIC = Path(__file__).resolve().parent / "static"
 TEMPLATE = "coldmargin"
+POOL_REFILL_DELAY_S = 60
 
 
 def notebooks_dir() -> Path:
@@ -130,9 +136,12 @@ def voila_command(cfg: ServeConfig, port: int) -> list[str]:
     ]
     if cfg.pool > 0:
         cmd += ["--preheat_kernel=True", f"--pool_size={cfg.pool}"]
-        # a pool for the pages a lab meeting opens; calibration and the archive start kernels on demand
-        cmd += ["--VoilaKernelManager.preheat_denylist=calibrate.ipynb",
-                "--VoilaKernelManager.preheat_denylist=archive.ipynb"]
+        # the pool is for the page each viewer opens (the planner); voila would keep a pool of the same size
+        # for every other notebook too (ten viewers: 20 kernels more), so the others start kernels on demand
+        cmd += [f"--VoilaKernelManager.preheat_denylist={name}.ipynb" for name in NOTEBOOKS if name != "plan"]
+        # a used kernel is replaced a minute later, not at once: ten arrivals then do not share the cores
+        # with ten refills running the notebook
+        cmd += [f"--VoilaKernelManager.fill_delay={POOL_REFILL_DELAY_S}"]
     return cmd
 
 
@@ -171,7 +180,8 @@ def add_app_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--port", type=int, default=DEFAULT_PORT,
                         help=f"port on 127.0.0.1 (default {DEFAULT_PORT}; the next free one if taken; 0: any)")
     parser.add_argument("--pool", type=int, default=0,
-                        help="kernels to keep pre-started for fast page loads, e.g. 4 for a lab meeting (default 0)")
+                        help="kernels to keep pre-started for fast page loads: one per expected viewer, e.g. 10 for a lab "
+                             "meeting of ten (each holds ~225 MB; start the server a minute or two early; default 0)")
     parser.add_argument("--cull-idle-min", type=float, default=30.0,
                         help="shut down a page's kernel after this many idle minutes (default 30)")
     parser.add_argument("--timeout-s", type=int, default=180, help="longest a notebook may take to start (default 180)")

@@ -174,3 +174,87 @@ def test_latent_heat_agrees_with_iapws():
     from planner.water_ice import latent_heat
 
     assert LATENT_HEAT_FUSION == pytest.approx(float(latent_heat(273.152519, 101325.0)), rel=1e-3)
+
+
+# --- speed-ups that must not change a number ----------------------------------------------------------------
+def test_sample_in_time_takes_an_array_answer_only_when_it_matches_one_by_one_calls():
+    from planner.freezing import sample_in_time
+
+    times = np.linspace(0.0, 100.0, 11)
+
+    def ramp(t):
+        return 270.0 - 0.1 * np.asarray(t)
+
+    def scalar_only(t):
+        return float(270.0 - 0.1 * t)  # float() of an array of 11 raises TypeError
+
+    def array_blind(t):
+        return float(np.max(np.asarray(t)))  # answers an array with one number: not accepted
+
+    def wrong_for_arrays(t):
+        t = np.asarray(t)
+        return np.full(t.shape, 1.0) if t.ndim else 270.0 - 0.1 * float(t)  # array answer disagrees
+
+    one_by_one = np.array([270.0 - 0.1 * t for t in times])
+    assert np.array_equal(sample_in_time(ramp, times), one_by_one)
+    assert np.array_equal(sample_in_time(scalar_only, times), one_by_one)
+    assert np.array_equal(sample_in_time(array_blind, times), times)
+    assert np.array_equal(sample_in_time(wrong_for_arrays, times), one_by_one)
+    assert sample_in_time(ramp, 5.0) == pytest.approx(269.5, rel=1e-15)  # scalar in, 0-d array out
+
+
+def test_enthalpy_freezing_gives_the_same_path_for_array_and_scalar_only_inputs():
+    def bath_array(t):
+        return T0 - 5.0 - 0.002 * np.asarray(t)
+
+    def bath_scalar(t):
+        if np.ndim(t):
+            raise TypeError("scalar times only")
+        return float(T0 - 5.0 - 0.002 * t)
+
+    def h_array(t):
+        return np.where(np.asarray(t) < 600.0, 40.0, 80.0)
+
+    def h_scalar(t):
+        if np.ndim(t):
+            raise TypeError("scalar times only")
+        return 40.0 if t < 600.0 else 80.0
+
+    a = enthalpy_freezing("cylinder", 0.005, pure_water_medium(), T0 - 3.0, bath_array, h_array, duration=1800.0,
+                          n_cells=12, initial_ice="equilibrium")
+    b = enthalpy_freezing("cylinder", 0.005, pure_water_medium(), T0 - 3.0, bath_scalar, h_scalar, duration=1800.0,
+                          n_cells=12, initial_ice="equilibrium")
+    for name in ("time", "bath_temperature", "centre_temperature", "mean_ice_fraction", "profile_temperature"):
+        assert np.array_equal(getattr(a, name), getattr(b, name)), name
+
+
+def test_lapack_tridiagonal_solve_equals_solve_banded():
+    from scipy.linalg import solve_banded
+    from scipy.linalg.lapack import dgtsv
+
+    rng = np.random.default_rng(11)
+    n = 32
+    lower, upper = -rng.uniform(0.0, 1.0, n - 1), -rng.uniform(0.0, 1.0, n - 1)
+    diag, rhs = rng.uniform(2.0, 3.0, n), rng.normal(0.0, 1.0, n)
+    banded = np.zeros((3, n))
+    banded[0, 1:], banded[1], banded[2, :-1] = upper, diag, lower
+    assert np.array_equal(dgtsv(lower, diag, upper, rhs)[3], solve_banded((1, 1), banded, rhs))
+
+
+def test_enthalpy_freezing_refuses_a_bath_or_h_that_fails_between_probe_times():
+    def bath(t):  # invented: finite at the 257 probe times only
+        t = np.asarray(t, dtype=float)
+        probe = np.isclose(np.remainder(t, 1800.0 / 256), 0.0) | np.isclose(np.remainder(t, 1800.0 / 256), 1800.0 / 256)
+        return np.where(probe | (t < 100.0), T0 - 10.0, np.nan)
+
+    with pytest.raises(ModelRangeError, match="bath"):
+        enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 - 3.0, bath, 50.0, duration=1800.0, n_cells=8,
+                          time_step=1.0)
+
+    def h(t):
+        t = np.asarray(t, dtype=float)
+        return np.where((t > 100.0) & (t < 101.5), -1.0, 50.0)
+
+    with pytest.raises(ModelRangeError, match="heat_transfer_coefficient"):
+        enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 - 3.0, T0 - 10.0, h, duration=1800.0, n_cells=8,
+                          time_step=1.0)

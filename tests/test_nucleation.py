@@ -450,3 +450,91 @@ def test_wall_term_adds_its_own_hazard():
     assert curve["probability"][-1] == pytest.approx(r.probability, rel=1e-9)
     with pytest.raises(InputError, match="wall_area"):
         nuc.freeze_probability(t, y, 1e-6, m, liquidus=C, wall_area=-1.0)
+
+
+# --- speed-ups that must not change a number ----------------------------------------------------------------
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(min_value=-1e6, max_value=1e6, allow_nan=False), min_size=1, max_size=300),
+       st.floats(min_value=0.0, max_value=1.0))
+def test_quantile_linear_is_numpys_quantile_to_the_bit(values, quantile):
+    x = np.asarray(values)
+    assert nuc._quantile_linear(x, quantile) == float(np.quantile(x, quantile))
+
+
+def test_quantile_linear_at_the_draw_counts_and_quantiles_the_planner_uses():
+    rng = np.random.default_rng(5)
+    for n in (1, 2, 1000, nuc.DEFAULT_DRAWS):
+        x = np.exp(rng.normal(0.0, 5.0, n))
+        for q in (0.05, 0.5, 0.95, 0.975):
+            assert nuc._quantile_linear(x, q) == float(np.quantile(x, q))
+    assert math.isnan(nuc._quantile_linear(np.array([1.0, np.nan, 2.0]), 0.5))
+
+
+def _terms_equal(a, b) -> bool:
+    return all(np.array_equal(getattr(a, name), getattr(b, name)) for name in
+               ("per_volume", "per_area", "homogeneous_per_volume", "per_wall_area")) and (
+        (a.central_per_volume, a.central_per_area, a.central_homogeneous_per_volume, a.central_per_wall_area)
+        == (b.central_per_volume, b.central_per_area, b.central_homogeneous_per_volume, b.central_per_wall_area))
+
+
+def test_risk_terms_memo_answers_as_a_fresh_computation_and_tells_inputs_apart():
+    nuc._RISK_TERMS_MEMO.clear()
+    t, y = hold_history(C - 6.0, 2.0)
+    model = nuc.preset("exposed-interface")
+    first, flags = nuc.risk_terms(t, y, model, C, draws=500)
+    again, flags_again = nuc.risk_terms(t, y, model, C, draws=500)
+    fresh, fresh_flags = nuc._risk_terms_uncached(t, y, model, C, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED)
+    assert _terms_equal(first, fresh) and _terms_equal(again, fresh) and flags == fresh_flags == flags_again
+    # each caller owns its flag list and RiskTerms object; the shared arrays cannot be changed in place
+    flags_again.append("a caller's own note")
+    assert nuc.risk_terms(t, y, model, C, draws=500)[1] == fresh_flags
+    assert again is not first
+    with pytest.raises(ValueError):
+        again.per_volume[0] = 0.0
+    # every input changes the answer to that input's own fresh answer, never the remembered one
+    y_nudged = y.copy()
+    y_nudged[1:3] -= 1e-9
+    other_model = nuc.preset("sealed-interface")
+    cases = [
+        ((t, y_nudged, model, C, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED)),
+        ((t, y, other_model, C, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED)),
+        ((t, y, model, C - 0.5, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED)),
+        ((t, y, model, C, nuc.DEFAULT_INTERFACIAL, 400, nuc.DEFAULT_SEED)),
+        ((t, y, model, C, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED + 1)),
+        ((t * 1.5, y, model, C, nuc.DEFAULT_INTERFACIAL, 500, nuc.DEFAULT_SEED)),
+    ]
+    for case in cases:
+        got, _ = nuc.risk_terms(*case)
+        want, _ = nuc._risk_terms_uncached(*case)
+        assert _terms_equal(got, want)
+        assert not _terms_equal(got, fresh)
+    assert len(nuc._RISK_TERMS_MEMO) <= nuc._RISK_TERMS_MEMO_SIZE
+
+
+def test_constant_rate_terms_with_draws_taken_once_equal_fresh_draws():
+    model = nuc.preset("exposed-interface")
+    drawn = nuc._constant_rate_draws(model, nuc.DEFAULT_INTERFACIAL, 800, nuc.DEFAULT_SEED)
+    for temp in (C + 1.0, C - 2.0, C - 15.0, C - 38.0):
+        fresh = nuc._constant_rate_terms(temp, model, C, nuc.DEFAULT_INTERFACIAL, 800, nuc.DEFAULT_SEED)
+        reused = nuc._constant_rate_terms(temp, model, C, nuc.DEFAULT_INTERFACIAL, 800, nuc.DEFAULT_SEED, drawn)
+        assert _terms_equal(fresh, reused)
+
+
+def test_exposure_in_place_sum_equals_the_plain_expression():
+    rng = np.random.default_rng(3)
+    x0 = rng.uniform(2.0, 20.0, 60)
+    x1 = x0 + rng.normal(0.0, 1.0, 60)
+    x1[::7] = x0[::7]  # holds
+    x1[3] = x0[3] + 1e-12  # a piece with u below 1e-9
+    dt = rng.uniform(1.0, 100.0, 60)
+    b = np.exp(rng.normal(0.0, 0.5, 300))
+    b[0] = 0.0
+    u = b[:, None] * (x1 - x0)[None, :]
+    with np.errstate(over="ignore", invalid="ignore"):
+        phi = np.where(np.abs(u) < 1e-9, 1.0 + u / 2, np.expm1(u) / np.where(u == 0, 1.0, u))
+    plain = (dt[None, :] * np.exp(b[:, None] * x0[None, :]) * phi).sum(axis=1)
+    assert np.array_equal(nuc._exposure(x0, x1, dt, b), plain)
+    assert nuc._exposure(x0, x1, dt, 0.7)[0] == pytest.approx(
+        float(np.sum(dt * np.exp(0.7 * x0) * np.where(np.abs(0.7 * (x1 - x0)) < 1e-9, 1.0,
+                                                      np.expm1(0.7 * (x1 - x0)) / np.where(x1 == x0, 1.0, 0.7 * (x1 - x0))))),
+        rel=1e-12)

@@ -64,8 +64,9 @@ def test_round_trip_through_yaml_keeps_everything():
     ("old", "new", "field", "words"),
     [
         ("volume_ml: 2.0", "volum_ml: 2.0", "sample.volum_ml", "did you mean 'volume_ml'"),
-        ("volume_ml: 2.0", "volume_ml: 0.0", "sample.volume_ml", "above 0"),
-        ("volume_ml: 2.0", "volume_ml: -1.0", "sample.volume_ml", "above 0"),
+        ("volume_ml: 2.0", "volume_ml: 0.0", "sample.volume_ml", "from 1e-09"),
+        ("volume_ml: 2.0", "volume_ml: -1.0", "sample.volume_ml", "from 1e-09"),
+        ("diameter_mm: 12.0", "diameter_mm: 3.88e-221", "sample.diameter_mm", "from 0.001"),
         ("volume_ml: 2.0", "volume_ml: .nan", "line", "finite"),
         ("volume_ml: 2.0", "volume_ml: true", "sample.volume_ml", "a number"),
         ("volume_ml: 2.0", "volume_ml: two", "sample.volume_ml", "a number"),

@@ -184,3 +184,12 @@ def test_freezing_time_spans_the_h_range(held):
     r = held[2].report
     fast, slow = r.freezing_time_range_min
     assert fast <= r.freezing_time_min <= slow
+
+
+def test_record_carries_the_unfrozen_fraction_curve():
+    p = load_protocol(ROOT / "protocols" / "slow-freeze-dmso.yaml")
+    out = section.build(p, context_for(p, ("solution", "thermal")))
+    c = out.report.curve
+    assert len(c["time_h"]) == len(c["mean_unfrozen_fraction"]) <= 80
+    fractions = [v for v in c["mean_unfrozen_fraction"] if v is not None]
+    assert all(0.0 <= v <= 1.0 for v in fractions) and fractions[-1] < fractions[0]

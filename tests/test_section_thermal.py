@@ -233,3 +233,19 @@ def test_lumped_lag_function_scalar_limits():
     # long ramp: the lag tends to B tau; short ramp: to B t (Incropera & DeWitt [ref:incropera-dewitt], lumped)
     assert thermal.chamber_lumped_lag(0.01, 1e6, 100.0) == pytest.approx(1.0, rel=1e-9)
     assert thermal.chamber_lumped_lag(0.01, 1.0, 1e6) == pytest.approx(0.01, rel=1e-5)
+
+
+def test_record_carries_a_thinned_temperature_curve_cut_at_the_seed():
+    from pathlib import Path
+
+    from planner.protocol import load_protocol
+
+    root = Path(__file__).resolve().parents[1] / "protocols"
+    out = thermal.build(load_protocol(root / "rigid-chamber-hold.yaml"), {})
+    c = out.report.curve
+    assert len(c["time_h"]) == len(c["bath_c"]) == len(c["coldest_point_c"]) <= 80
+    # the bath program itself: starts at 4 C, reaches the -4 C hold, ends back at 4 C (the protocol file)
+    assert c["bath_c"][0] == pytest.approx(4.0) and min(c["bath_c"]) == pytest.approx(-4.0, abs=1e-6)
+    seeded = thermal.build(load_protocol(root / "slow-freeze-dmso.yaml"), {})
+    assert seeded.state.frozen_from is not None
+    assert seeded.report.curve["time_h"][-1] <= seeded.state.frozen_from / 3600.0 + 1e-4

@@ -257,9 +257,12 @@ def test_voila_command_binds_loopback_with_token_and_no_sources():
     for part in ("--Voila.ip=127.0.0.1", "--port=9999", "--Voila.port_retries=0", "--token=abc",
                  "--strip_sources=True", "--show_tracebacks=False", "--template=coldmargin",
                  "--MappingKernelManager.cull_idle_timeout=600", "--preheat_kernel=True", "--pool_size=3",
-                 "--VoilaExecutor.timeout="):
+                 "--VoilaExecutor.timeout=", "--VoilaKernelManager.fill_delay=60"):
         assert part in joined
     assert cmd[3].endswith("notebooks")
+    # the pool serves the planner page only; the other notebooks start kernels on demand
+    denied = [c.split("=", 1)[1] for c in cmd if c.startswith("--VoilaKernelManager.preheat_denylist=")]
+    assert sorted(denied) == ["archive.ipynb", "calibrate.ipynb", "compare.ipynb"]
 
 
 def test_voila_environment_uses_its_own_jupyter_folders(tmp_path):

@@ -450,3 +450,32 @@ def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
     assert app.model.current and "<svg" in app.step_views["sample"].chart.value
     assert not app.model.worker.inline
     assert not any(v.chart_worker.inline for v in app.step_views.values())
+
+
+def test_a_page_starts_with_the_first_step_only_and_builds_the_others_when_shown():
+    """Every widget is a model the browser must build before the page is usable: the first page holds the
+    first step's widgets only (ten viewers at once each get a light page); a step is built when first
+    shown and then kept, so what was typed in it stays."""
+    import ipywidgets as w
+
+    from planner.ui.planner_app import PlannerApp
+
+    before = len(w.widgets.widget._instances)
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    first_page = len(w.widgets.widget._instances) - before
+    assert list(app.step_views) == ["sample"]
+    assert app._review is None and app._sign is None
+    assert first_page < 250, first_page  # was about 560 with every step built up front
+    app.model.go("container")
+    assert list(app.step_views) == ["sample", "container"]
+    assert app.body.children[0] is app.step_views["container"].box
+    volume = _field(app, "sample.volume_ml")
+    volume.input.value = "3"
+    app.model.go("solution")
+    app.model.go("sample")
+    assert app.step_views["sample"] is volume.app.step_views["sample"]
+    assert _field(app, "sample.volume_ml").input.value == "3" and app.model.value("sample.volume_ml") == 3
+    app.steps_bar.value = "review"
+    assert app._review is not None and app.body.children[0] is app.review.box
+    assert app._sign is None

@@ -89,6 +89,7 @@ class FreezingReport(Result):
     unfrozen_liquid_osmolality_at_storage_osmol_per_kg: float | None = None
     geometry_solved: str = ""
     notes: list[str] = field(default_factory=list)
+    curve: dict[str, list[float | None]] | None = None  # unfrozen water and its osmolality vs time (record)
 
 
 @dataclass
@@ -128,9 +129,10 @@ def _h_of(history):
     """h(t) [W/(m2 K)] of a thermal history: the step function of time the heat-transfer model used."""
     t_h, h_h = np.asarray(history.time, dtype=float), np.asarray(history.h, dtype=float)
 
-    def h_at(t: float) -> float:
-        i = int(np.clip(np.searchsorted(t_h, t, side="right") - 1, 0, h_h.size - 1))
-        return float(h_h[i])
+    def h_at(t):
+        # scalar in, float out; an array of times in, an array out
+        i = np.clip(np.searchsorted(t_h, t, side="right") - 1, 0, h_h.size - 1)
+        return float(h_h[i]) if np.ndim(i) == 0 else h_h[i]
 
     return h_at
 
@@ -156,8 +158,9 @@ def _h_programme(protocol: Protocol, context: dict[str, SectionOutput], flags: l
     starts = np.array([c[0] for c in changes])
     values = np.array([c[1] for c in changes])
 
-    def h_from_presets(t: float) -> float:
-        return float(values[int(np.searchsorted(starts, t, side="right") - 1)])
+    def h_from_presets(t):
+        i = np.searchsorted(starts, t, side="right") - 1
+        return float(values[i]) if np.ndim(i) == 0 else values[i]
 
     return h_from_presets
 
@@ -312,9 +315,10 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         flags.append(Flag("indicative", "the vial is solved as a long cylinder: with its ends cooling too it "
                           "freezes somewhat faster, so the freezing time is an upper bound", "plank-1913"))
 
-    def bath_at(t: float) -> float:
+    def bath_at(t):
         # just before the leg's end: at a plunge's own time the bath is already the new one
-        return float(bath.temperature_at(start_time + min(t, (leg_end - start_time) * (1 - 1e-9))))
+        temperature = bath.temperature_at(start_time + np.minimum(t, (leg_end - start_time) * (1 - 1e-9)))
+        return float(temperature) if np.ndim(temperature) == 0 else temperature
 
     leg_end_bath = bath_at(duration)
     from planner.solution import freeze_concentration
@@ -323,7 +327,7 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     flags.extend(_curve_flags(fc_end))
     target = frz.FROZEN_SHARE * float(fc_end.ice_fraction_of_water)
     path = frz.enthalpy_freezing(
-        geometry, half, medium, start_temperature, bath_at, lambda t: h_at(start_time + t), duration,
+        geometry, half, medium, start_temperature, bath_at, lambda t: h_at(start_time + np.asarray(t)), duration,
         n_cells=CELLS, record_interval=min(30.0, duration / 200.0), time_step=min(MAX_TIME_STEP, duration / 400.0),
     )
     flags.extend(path.flags)
@@ -335,7 +339,7 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         for which in ("high", "low"):  # short to long
             h_which = _h_of(bracket[which])
             other = frz.enthalpy_freezing(
-                geometry, half, medium, start_temperature, bath_at, lambda t, h=h_which: h(start_time + t), duration,
+                geometry, half, medium, start_temperature, bath_at, lambda t, h=h_which: h(start_time + np.asarray(t)), duration,
                 n_cells=CELLS, record_interval=min(30.0, duration / 200.0),
                 time_step=min(MAX_TIME_STEP, duration / 400.0), stop_at_centre_ice_fraction=target,
             )
@@ -402,8 +406,25 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
                          "geometry": geometry, "half_dimension_m": half, "time_step_s": path.parameters["time_step_s"]}
     report.flags = _dedupe(flags)
     report.notes = notes
+    report.curve = _record_curve(state)
     cautions = ["ln2-handling"] if protocol.schedule.uses_liquid_nitrogen else []
     return SectionOutput(NAME, report, [], cautions, state)
+
+
+CURVE_POINTS = 80  # points carried in the record; the app draws every point of the state
+
+
+def _record_curve(state: FreezingState) -> dict[str, list[float | None]]:
+    """The unfrozen fraction of the water (mean over the sample) and the unfrozen liquid's osmolality at the
+    centre against schedule time, thinned for the record."""
+    t = np.asarray(state.time, dtype=float)
+    idx = np.unique(np.linspace(0, t.size - 1, min(CURVE_POINTS, t.size)).round().astype(int))
+
+    def column(a, digits):
+        return [round(float(x), digits) if np.isfinite(x) else None for x in np.asarray(a, dtype=float)[idx]]
+
+    return {"time_h": column(t / 3600.0, 4), "mean_unfrozen_fraction": column(state.mean_unfrozen_fraction, 4),
+            "centre_liquid_osmolality_osmol_per_kg": column(state.centre_liquid_osmolality, 3)}
 
 
 def _curve_flags(fc) -> list[Flag]:

@@ -69,6 +69,7 @@ class ThermalReport(Result):
     chamber_time_constant_min: float | None = None
     chamber_max_lag_k: float | None = None
     chamber_max_lag_range_k: list[float] | None = None
+    curve: dict[str, list[float | None]] | None = None  # bath and coldest point vs time, for the record
 
 
 @dataclass
@@ -478,4 +479,23 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         model=hist.model,
         frozen_from=frozen_from,
     )
+    report.curve = _record_curve(state)
     return SectionOutput("thermal", report, margins, [], state)
+
+
+CURVE_POINTS = 80  # points of the temperature curve carried in the record (the app draws every point)
+
+
+def _record_curve(state: ThermalState) -> dict[str, list[float | None]]:
+    """Bath and coldest-point temperature against time, thinned for the record; cut where ice is seeded,
+    since this liquid model does not describe the sample after that."""
+    t = np.asarray(state.time, dtype=float)
+    end = t.size if state.frozen_from is None else int(np.searchsorted(t, state.frozen_from, side="right"))
+    idx = np.unique(np.linspace(0, max(end - 1, 0), min(CURVE_POINTS, max(end, 1))).round().astype(int))
+
+    def celsius(a):
+        return [round(float(x) - CELSIUS_OFFSET, 3) for x in np.asarray(a, dtype=float)[idx]]
+
+    return {"time_h": [round(float(x) / 3600.0, 4) for x in t[idx]],
+            "bath_c": celsius(state.bath_temperature),
+            "coldest_point_c": celsius(state.coldest_temperature_history)}

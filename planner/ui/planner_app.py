@@ -301,6 +301,36 @@ class StepView:
                                  lambda text: setattr(self.chart, "value", text), lost)
 
 
+class StepViews(dict):
+    """The form steps' views, each built the first time it is asked for.
+
+    A page starts with the first step's widgets only: every widget is a model the kernel sends and the
+    browser builds before the page can be used, and building all five form steps up front made about 560
+    of them (ten viewers at once: 5600 on one machine). A step never shown costs nothing; a step once
+    built is kept, so nothing typed in it is lost when moving on. ``values()`` and iteration cover the
+    steps built so far.
+    """
+
+    def __init__(self, app: PlannerApp):
+        super().__init__()
+        self.app = app
+
+    def __missing__(self, name: str) -> StepView:
+        spec = registry.step(name)
+        if spec.kind != "form":
+            raise KeyError(name)
+        app = self.app
+        was = app.syncing
+        app.syncing = True
+        try:
+            view = StepView(app, spec)
+        finally:
+            app.syncing = was
+        self[name] = view  # its chart worker follows the model's (threads once the page is up)
+        view.refresh_state()
+        return view
+
+
 class PlannerApp:
     """The planner in steps: Sample → Container → Solution → Schedule → Cells → Review → Sign & archive.
 
@@ -328,14 +358,12 @@ class PlannerApp:
         self.message = html_box("", "cm-app-message")
         self._build_header()
         self.strip = html_box("", "cm-summary")
-        self.step_views: dict[str, StepView] = {}
+        self.step_views: StepViews = StepViews(self)
         self.body = w.VBox()
         self.body.add_class("cm-body")
         self._build_nav()
-        from planner.ui.review import ReviewView, SignView
-
-        self.review = ReviewView(self)
-        self.sign = SignView(self)
+        self._review = None  # the review and sign views are built when first shown (see StepViews)
+        self._sign = None
         self.planning = html_box(planning_support_html(None), "cm-planning-box")
         self.widget = w.VBox([html_box(style_html()), self.header, self.nav, self.strip, self.message, self.body,
                               self.planning])
@@ -364,6 +392,24 @@ class PlannerApp:
             self.model.worker = Worker(inline=False)
             for view in self.step_views.values():
                 view.chart_worker = Worker(inline=False)
+
+    @property
+    def review(self):
+        """The review step's view (built on first use)."""
+        if self._review is None:
+            from planner.ui.review import ReviewView
+
+            self._review = ReviewView(self)
+        return self._review
+
+    @property
+    def sign(self):
+        """The sign & archive step's view (built on first use)."""
+        if self._sign is None:
+            from planner.ui.review import SignView
+
+            self._sign = SignView(self)
+        return self._sign
 
     # --- building ------------------------------------------------------------------------------------
 
@@ -410,13 +456,9 @@ class PlannerApp:
     def _rebuild_steps(self) -> None:
         self.syncing = True
         try:
-            for spec in registry.STEPS:
-                if spec.kind != "form":
-                    continue
-                if spec.name in self.step_views:
-                    self.step_views[spec.name].refresh_values()
-                else:
-                    self.step_views[spec.name] = StepView(self, spec)
+            # steps already built take the new values; the others are built from the model when shown
+            for view in list(self.step_views.values()):
+                view.refresh_values()
         finally:
             self.syncing = False
 
@@ -495,8 +537,10 @@ class PlannerApp:
         current = self.step_views.get(self.model.step)
         if current is not None:
             current.refresh_chart()
-        self.review.refresh()
-        self.sign.refresh()
+        if self._review is not None:
+            self.review.refresh()
+        if self._sign is not None:
+            self.sign.refresh()
         self.planning.value = planning_support_html(self.model.report)
         self.download.value = download_link(self.model.download_name(), self.model.protocol_yaml().encode("utf-8"),
                                             "Download protocol (YAML)", "text/yaml")

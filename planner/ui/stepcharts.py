@@ -49,7 +49,7 @@ def schedule_chart(time_h: Sequence[float], curves: dict[str, Sequence[float]], 
                    probability_time_h: Sequence[float] | None = None,
                    probability: Sequence[float] | None = None,
                    probability_band: tuple[Sequence[float], Sequence[float]] | None = None,
-                   title: str = "") -> alt.Chart:
+                   title: str = "", extra_layers: Sequence[alt.Chart] = ()) -> alt.Chart:
     """Temperatures against time with the liquidus and the homogeneous-nucleation limit drawn as lines,
     and the cumulative freeze probability below on the same time axis.
 
@@ -86,6 +86,7 @@ def schedule_chart(time_h: Sequence[float], curves: dict[str, Sequence[float]], 
             layers.append(base.mark_rule(strokeDash=[4, 3], color=colour).encode(y="y:Q"))
             layers.append(base.mark_text(align="left", dx=4, dy=-6, color=colour).encode(
                 y="y:Q", x=alt.value(4), text="label:N"))
+    layers.extend(extra_layers)  # e.g. the recalescence jump (planner.ui.schedule_extras)
     top = alt.layer(*layers).properties(width=WIDTH, height=HEIGHT, title=title or "Bath and sample temperature")
     if probability_time_h is None or probability is None:
         return top
@@ -295,12 +296,28 @@ def schedule_data(model) -> tuple[dict[str, Any] | None, str]:
 
 
 def _draw_schedule(model):
+    from planner.ui import schedule_extras as extras
+
     data, note = schedule_data(model)
     if data is None:
         return None, note
-    return schedule_chart(data["time_h"], data["curves"], liquidus_c=data.get("liquidus_c"),
-                          homogeneous_c=data.get("homogeneous_c"), probability_time_h=data.get("probability_time_h"),
-                          probability=data.get("probability"), probability_band=data.get("probability_band")), note
+    freezing = extras.freezing_series(model.assessment)
+    if freezing is not None:
+        extras.replace_sample_curves_after_ice(data, freezing)
+    marker = extras.recalescence_marker(model.assessment, model.protocol.policy.target_freeze_probability)
+    chart = schedule_chart(data["time_h"], data["curves"], liquidus_c=data.get("liquidus_c"),
+                           homogeneous_c=data.get("homogeneous_c"), probability_time_h=data.get("probability_time_h"),
+                           probability=data.get("probability"), probability_band=data.get("probability_band"),
+                           extra_layers=extras.recalescence_layers(marker, data["time_h"][-1]) if marker else ())
+    if marker:
+        note = (note + " " if note else "") + ("The red jump marks what happens if ice forms at the coldest point: "
+                                               + marker["label"] + ".")
+    if freezing is not None:
+        chart = alt.vconcat(chart, extras.freezing_panel(freezing, data["time_h"][-1]))
+        note = (note + " " if note else "") + ("From the seed on, the sample curves are the freezing model's "
+                                               "(latent heat included); below them, the unfrozen water and "
+                                               "what the cells sit in.")
+    return chart, note
 
 
 def _draw_freezing_point(model):
