@@ -15,8 +15,10 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	@touch $(STAMP)
 
+# For a lab meeting, pre-start one kernel per viewer: `make app POOL=10` (about 225 MB each; start the
+# server a minute or two before people open the link).
 app: $(STAMP)
-	$(BIN)/coldmargin app --protocol $(DEMO)
+	$(BIN)/coldmargin app --protocol $(DEMO) $(if $(POOL),--pool $(POOL))
 
 # Debian's chromium for the browser tests (never a downloaded browser). As root it is installed with
 # apt-get; otherwise we say how. In CI (CI=true) a missing browser fails the run.

@@ -25,6 +25,12 @@ ten-viewer runs, so read them as a busy machine's, not a quiet one's):
   laptops would not share this), the notebooks ran until ~95 s, and each page was usable 4–6 s after
   its websocket opened. Kernels 221–225 MB each; memory available 23344 MB before, 19175 MB at the
   lowest with the ten browsers.
+- ten viewers with ``--pool 10`` as it was first served (voila kept a pool of ten for the compare page
+  too, and replaced each used kernel at once): 30 kernels at the peak; pages arrived pre-rendered in
+  15–20 s but the widgets had not connected by 130 s and none was interactive within 150 s (load average
+  ~48, 11.5 GB available). Hence the pool now serves the plan page only and refills a minute after a
+  kernel is taken; the figure with those settings is still to be measured (run ``--viewers-only
+  --viewers-pool 10``).
 """
 
 from __future__ import annotations
