@@ -38,8 +38,8 @@ def stand_in_evaluate():
 
 @pytest.mark.parametrize("celsius, log10_rate_per_cm3_s", [
     # Koop & Murray 2016 (J. Chem. Phys. 145:211915) parameterisation, evaluated at these temperatures:
-    # log10 J = 4.42 at -35 C and 8.79 at -38 C (values in /work/shared/REFERENCES.md, [calc] from the
-    # published polynomial) [ref:koop-murray-2016]
+    # log10 J = 4.42 at -35 C and 8.79 at -38 C, computed from the published polynomial
+    # [ref:koop-murray-2016]
     (-35.0, 4.42),
     (-38.0, 8.79),
 ])
