@@ -202,6 +202,20 @@ def config_from_args(args: argparse.Namespace) -> ServeConfig:
     ).check()
 
 
+def _raise_interrupt(signum, frame):
+    raise KeyboardInterrupt
+
+
+def _signal_group(proc: subprocess.Popen, sig: int) -> None:
+    """Signal voila's process group (it leads its own session), or voila alone if the group is gone."""
+    try:
+        os.killpg(proc.pid, sig)
+    except ProcessLookupError:
+        pass
+    except PermissionError:
+        proc.send_signal(sig)
+
+
 def run_app(args: argparse.Namespace) -> int:
     """Start voila in the foreground and print the address to open; returns its exit code."""
     cfg = config_from_args(args)
@@ -226,16 +240,21 @@ def run_app(args: argparse.Namespace) -> int:
     print("Planning support only: a margin is never a guarantee; local codes and biosafety rules decide.")
     print("Stop with Ctrl+C.", flush=True)
     proc = subprocess.Popen(cmd, env=env, start_new_session=True)
+    # voila runs in its own session, so a SIGTERM or SIGHUP sent to this process alone would leave it and
+    # its kernels running: treat them like Ctrl+C and stop the whole voila process group.
+    previous = {sig: signal.signal(sig, _raise_interrupt) for sig in (signal.SIGTERM, signal.SIGHUP)}
     try:
         return proc.wait()
     except KeyboardInterrupt:
-        proc.send_signal(signal.SIGTERM)
+        _signal_group(proc, signal.SIGTERM)
         try:
             return proc.wait(timeout=20)
         except subprocess.TimeoutExpired:
-            proc.kill()
+            _signal_group(proc, signal.SIGKILL)
             return proc.wait()
     finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
         if own_dir:
             shutil.rmtree(state_dir, ignore_errors=True)
 
