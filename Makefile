@@ -15,8 +15,9 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	@touch $(STAMP)
 
-# For a lab meeting, pre-start one kernel per viewer: `make app POOL=10` (about 225 MB each; start the
-# server a minute or two before people open the link).
+# One kernel is pre-started by default (the first page opens in ~2 s). For a lab meeting, pre-start one
+# per viewer: `make app POOL=10` (about 225 MB each; start the server a minute or two before people open
+# the link); `POOL=0` for none.
 app: $(STAMP)
 	$(BIN)/coldmargin app --protocol $(DEMO) $(if $(POOL),--pool $(POOL))
 

@@ -58,12 +58,15 @@ ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-net
 RUNNING: list = []  # servers started by this script, stopped on any exit
 
 
-def start(pool: int = 0):
+OPEN_VIAL = ROOT / "protocols" / "supercooled-open-vial.yaml"
+RIGID = ROOT / "protocols" / "rigid-chamber-hold.yaml"  # the demo `make app` opens
+
+
+def start(pool: int = 0, protocol: Path = OPEN_VIAL):
     from planner.serve import ServeConfig, free_port, voila_command, voila_environment
 
     folder = Path(tempfile.mkdtemp(prefix="coldmargin-bench-"))
-    cfg = ServeConfig(token="bench", pool=pool, protocol=ROOT / "protocols" / "supercooled-open-vial.yaml",
-                      timeout_s=300).check()
+    cfg = ServeConfig(token="bench", pool=pool, protocol=protocol, timeout_s=300).check()
     port = free_port(0)
     t0 = time.monotonic()
     proc = subprocess.Popen(voila_command(cfg, port), env=voila_environment(cfg, folder / "jupyter"),
@@ -137,28 +140,87 @@ def available_mb() -> float:
     return float("nan")
 
 
-def change_and_wait(page, box, value: str) -> float:
+# In the page: the time of the Enter key press and of each change to the summary strip, by the page's own
+# clock (what a person at the screen sees, without the test driver's own messages to the browser).
+WATCH_STRIP = """() => { window.cmMarks = []; const s = document.querySelector('.cm-summary');
+  new MutationObserver(() => { window.cmMarks.push([performance.now(), s.innerText.includes('Working')]); })
+    .observe(s, {subtree: true, childList: true, characterData: true});
+  document.addEventListener('keydown', (e) => { if (e.key === 'Enter') window.cmEnter = performance.now(); },
+                            true); }"""
+
+
+def change_and_wait(page, box, value: str) -> tuple[float, float]:
+    """One change typed and entered: seconds until the strip shows the new result, seen from the driver
+    and seen in the page (Enter pressed → last change of the strip that is not "Working")."""
     before = page.locator(".cm-summary").inner_text()
+    page.evaluate("() => { window.cmMarks = []; }")
     t = time.perf_counter()
     box.fill(value)
     box.press("Enter")
     page.wait_for_function(
         "(old) => { const s = document.querySelector('.cm-summary');"
         " return s && s.innerText !== old && !s.innerText.includes('Working'); }", arg=before, timeout=120_000)
-    return time.perf_counter() - t
+    outside = time.perf_counter() - t
+    inside = page.evaluate("() => { const m = window.cmMarks.filter(x => !x[1]);"
+                           " return m.length ? (m[m.length - 1][0] - window.cmEnter) / 1000 : NaN; }")
+    return outside, inside
+
+
+def first_chart(page, timeout_ms: int = 300_000) -> None:
+    """The first step's chart is drawn (an SVG in its box)."""
+    page.locator(".cm-chart-sample svg").first.wait_for(timeout=timeout_ms)
+
+
+def round_trips(page, protocol_label: str, changes: int) -> None:
+    """Concentration changes on the Solution step: new values (full assessments), then two values in turn
+    (the app's cache). Back to back, as fast as the driver can type: the chart of one change is still being
+    drawn when the next arrives, which a person typing would seldom do."""
+    page.get_by_role("button", name="Solution", exact=True).click()
+    box = page.get_by_label("Concentration (% w/w)", exact=True)
+    start = float(box.input_value())
+    page.evaluate(WATCH_STRIP)
+
+    def settled(value: str) -> tuple[float, float]:
+        out = change_and_wait(page, box, value)
+        page.wait_for_function("() => !document.querySelector('.cm-chart-solution .cm-chart-updating')",
+                               timeout=120_000)
+        time.sleep(0.2)
+        return out
+
+    read = [settled(f"{start - 0.1 * (i + 1):.2f}") for i in range(changes)]
+    fresh = [change_and_wait(page, box, f"{start + 0.5 * (i + 1):.1f}") for i in range(changes)]
+    cached = [change_and_wait(page, box, f"{start + 1.0:.1f}" if i % 2 else f"{start + 2.0:.1f}")
+              for i in range(changes)]
+    for what, runs in (("new value, each result read (chart drawn) before the next change", read),
+                       ("new value, back to back", fresh), ("flipping between two values (cached)", cached)):
+        outside = [a * 1000 for a, _ in runs]
+        inside = [b * 1000 for _, b in runs]
+        print(f"round trip, {protocol_label}, {what}: in the page median {statistics.median(inside):.0f} ms "
+              f"(min {min(inside):.0f}, max {max(inside):.0f}); seen by the driver median "
+              f"{statistics.median(outside):.0f} ms (min {min(outside):.0f}, max {max(outside):.0f}) over {changes}")
 
 
 def one_viewer(page_url: str, started: float) -> None:
     """One viewer in its own browser (a separate process, as on its own computer): prints seconds from
     ``started`` (time.time() of the launch) to interactive and to the first assessment."""
+    import sys
+
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
         page = browser.new_page()
         page.set_default_timeout(600_000)
+        console: list[str] = []
+        page.on("console", lambda m: console.append(f"{time.time() - started:.1f} s {m.type}: {m.text}"))
         page.goto(page_url)
-        interactive(page, timeout_ms=600_000)
+        try:
+            interactive(page, timeout_ms=int(os.environ.get("BENCH_VIEWER_TIMEOUT_S", "600")) * 1000)
+        except Exception:
+            shot = Path(tempfile.gettempdir()) / f"coldmargin-viewer-{os.getpid()}.png"
+            page.screenshot(path=str(shot))
+            print(f"not interactive; screenshot {shot}; console:", *console[-30:], sep="\n  ", file=sys.stderr)
+            raise
         ready = time.time() - started
         assessed(page, timeout_ms=600_000)
         print(f"{ready:.2f} {time.time() - started:.2f}", flush=True)
@@ -242,6 +304,7 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="fewer repetitions")
     parser.add_argument("--cold-only", action="store_true", help="only the cold-start figures")
     parser.add_argument("--viewers-only", action="store_true", help="only the ten-viewers figure")
+    parser.add_argument("--no-viewers", action="store_true", help="skip the ten-viewers figures")
     parser.add_argument("--viewers-pool", type=int, default=0, help="pre-started kernels for --viewers-only")
     parser.add_argument("--one-viewer", nargs=2, metavar=("URL", "STARTED"), help=argparse.SUPPRESS)
     args = parser.parse_args()
@@ -254,78 +317,79 @@ def main() -> None:
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=ARGS)
 
-        # 1. cold start, no pool
-        cold = []
-        for _ in range(0 if args.viewers_only else cold_runs):
-            proc, port, folder, t0, up = start(pool=0)
-            page = browser.new_page(viewport={"width": 1300, "height": 1400})
-            page.set_default_timeout(300_000)
-            page.goto(url(port))
-            interactive(page)
-            cold.append(time.monotonic() - t0)
-            assessed(page)
-            print(f"cold start: server answering {up:.1f} s, first interactive step {cold[-1]:.1f} s, "
-                  f"first assessment in the strip {time.monotonic() - t0:.1f} s")
-            page.close()
-            if _ < cold_runs - 1:
+        # 1. cold start: the server started and the page opened at once, with no pool and with the app's
+        # default pool of one pre-started kernel (which is still running the notebook when the page asks)
+        for pool in (() if args.viewers_only else (0, 1)):
+            cold, strip, chart = [], [], []
+            for _ in range(cold_runs):
+                proc, port, folder, t0, up = start(pool=pool, protocol=RIGID)
+                page = browser.new_page(viewport={"width": 1300, "height": 1400})
+                page.set_default_timeout(300_000)
+                page.goto(url(port))
+                interactive(page)
+                cold.append(time.monotonic() - t0)
+                assessed(page)
+                strip.append(time.monotonic() - t0)
+                first_chart(page)
+                chart.append(time.monotonic() - t0)
+                print(f"cold start, pool {pool}: server answering {up:.1f} s, first interactive step {cold[-1]:.1f} s, "
+                      f"first assessment in the strip {strip[-1]:.1f} s, first chart {chart[-1]:.1f} s")
+                page.close()
                 stop(proc, folder)
+            print(f"cold start, pool {pool}, medians over {len(cold)}: interactive {statistics.median(cold):.1f} s, "
+                  f"assessed {statistics.median(strip):.1f} s, chart {statistics.median(chart):.1f} s")
 
         if args.viewers_only:
             viewers_at_once(browser, viewers, pool=args.viewers_pool)
             browser.close()
             return
         if args.cold_only:
-            stop(proc, folder)
-            print(f"cold start median: {statistics.median(cold):.1f} s over {len(cold)}")
             browser.close()
             return
 
-        # 2. round trips on the last cold server, 3. memory of its kernel after the full demo
-        page = browser.new_page(viewport={"width": 1300, "height": 1400})
-        page.set_default_timeout(300_000)
-        t = time.monotonic()
-        page.goto(url(port))
-        interactive(page)
-        print(f"second page load on the same server (new kernel): {time.monotonic() - t:.1f} s")
-        assessed(page)
-        page.get_by_role("button", name="Solution", exact=True).click()
-        box = page.get_by_label("Concentration (% w/w)", exact=True)
-        fresh = [change_and_wait(page, box, f"{5 + 0.5 * (i + 1):.1f}") for i in range(changes)]
-        cached = [change_and_wait(page, box, "6.0" if i % 2 else "7.0") for i in range(changes)]
-        for name in ("Sample", "Container", "Solution", "Schedule", "Cells", "Review", "Sign & archive"):
-            page.get_by_role("button", name=name, exact=True).click()
-            page.locator(".cm-body h3", has_text=name).first.wait_for()
-        time.sleep(2)
-        pids = kernel_pids(proc.pid)
-        print(f"round trip, new value each time: median {statistics.median(fresh) * 1000:.0f} ms "
-              f"(min {min(fresh) * 1000:.0f}, max {max(fresh) * 1000:.0f}) over {changes}")
-        print(f"round trip, flipping between two values (cached): median {statistics.median(cached) * 1000:.0f} ms "
-              f"(min {min(cached) * 1000:.0f}, max {max(cached) * 1000:.0f}) over {changes}")
-        print("kernel memory after the full demo: " + ", ".join(f"{rss_mb(p):.0f} MB" for p in pids)
-              + f" ({len(pids)} kernel(s) alive on this server)")
-        page.close()
-        stop(proc, folder)
-        print(f"cold start median: {statistics.median(cold):.1f} s over {len(cold)}")
+        # 2. round trips, 3. memory of the kernel after the full demo
+        for protocol, label in ((OPEN_VIAL, "open-vial demo"), (RIGID, "rigid-chamber demo")):
+            proc, port, folder, t0, up = start(pool=0, protocol=protocol)
+            page = browser.new_page(viewport={"width": 1300, "height": 1400})
+            page.set_default_timeout(300_000)
+            t = time.monotonic()
+            page.goto(url(port))
+            interactive(page)
+            assessed(page)
+            time.sleep(2)  # let the first chart finish, as a person reading the page would
+            round_trips(page, label, changes)
+            for name in ("Sample", "Container", "Solution", "Schedule", "Cells", "Review", "Sign & archive"):
+                page.get_by_role("button", name=name, exact=True).click()
+                page.locator(".cm-body h3", has_text=name).first.wait_for()
+            time.sleep(2)
+            pids = kernel_pids(proc.pid)
+            print(f"kernel memory after the full demo ({label}): " + ", ".join(f"{rss_mb(p):.0f} MB" for p in pids)
+                  + f" ({len(pids)} kernel(s) alive on this server)")
+            page.close()
+            stop(proc, folder)
 
         # pre-started pool: page loads
-        proc, port, folder, t0, up = start(pool=2)
-        time.sleep(5)
-        page = browser.new_page()
-        page.set_default_timeout(300_000)
-        page.goto(url(port))
-        interactive(page)
-        first = time.monotonic() - t0
-        page.close()
-        time.sleep(3)
-        page = browser.new_page()
-        page.set_default_timeout(300_000)
-        t = time.monotonic()
-        page.goto(url(port))
-        interactive(page)
-        print(f"pool of 2: first page interactive {first:.1f} s after start; a later page load {time.monotonic() - t:.1f} s")
-        page.close()
+        proc, port, folder, t0, up = start(pool=2, protocol=RIGID)
+        ready = pool_ready(proc, 2) + up
+        loads = []
+        for _ in range(2):
+            page = browser.new_page()
+            page.set_default_timeout(300_000)
+            t = time.monotonic()
+            page.goto(url(port))
+            interactive(page)
+            a = time.monotonic() - t
+            assessed(page)
+            loads.append((a, time.monotonic() - t))
+            page.close()
+            time.sleep(3)
+        print(f"pool of 2: kernels ready {ready:.1f} s after start; page loads interactive / assessed: "
+              + ", ".join(f"{a:.1f} / {b:.1f} s" for a, b in loads))
         stop(proc, folder)
 
+        if args.no_viewers:
+            browser.close()
+            return
         viewers_at_once(browser, viewers)
         viewers_at_once(browser, viewers, pool=viewers)
         browser.close()

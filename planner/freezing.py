@@ -6,11 +6,12 @@ Two methods, checked against each other and against the Neumann solution (tests/
   closed form that counts only the latent heat and treats the frozen layer as quasi-steady
   [ref:plank-1913];
 - :func:`enthalpy_freezing`: a 1-D finite-volume enthalpy-method solution (slab, long cylinder or
-  sphere, explicit in time with a stable step) that follows the temperature and the ice fraction of
+  sphere, implicit in time) that follows the temperature and the ice fraction of
   every shell while the bath follows its programme [ref:voller-cross-1981]. For a solution the ice
   fraction below the liquidus follows the freeze-concentration curve (equilibrium: the unfrozen liquid
   concentrates so that its freezing point equals the local temperature), supplied by the caller (the
-  solution model, ``planner.solution.freeze_concentration``).
+  solution model, ``planner.solution.freeze_concentration``). :func:`enthalpy_freezing_runs` solves
+  several surface coefficients (a nominal h and the ends of its range) in one pass.
 
 Both work in SI units: temperature [K], length [m], time [s], W, J, kg.
 """
@@ -18,12 +19,17 @@ Both work in SI units: temperature [K], length [m], time [s], W, J, kg.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy.linalg.lapack import dgtsv
+
+try:  # numpy's compiled linear interpolation, without np.interp's checks for complex and periodic data
+    from numpy._core._multiarray_umath import interp as _interp
+except ImportError:  # pragma: no cover - another numpy layout: the public function, a little slower
+    _interp = np.interp
 
 from planner.errors import ModelRangeError, choice_error
 from planner.results import Flag, Result
@@ -55,6 +61,17 @@ FROZEN_SHARE = 0.9
 #: about 10 % (common practice, no source): flagged, not refused.
 PLANK_STEFAN_LIMIT = 0.3
 PLANK = Validity("Plank freezing time", "plank-1913", {"stefan_number": Range(0.0, PLANK_STEFAN_LIMIT, "1")})
+
+#: Newton updates allowed per implicit step of the enthalpy method: a base, plus a share per shell (one long
+#: step may carry the freezing front through every shell, and each stop on a kink costs an update).
+NEWTON_UPDATES_BASE = 40
+NEWTON_UPDATES_PER_SHELL = 4
+#: Energy residual accepted per shell and step, as a share of the latent heat of the sample's water.
+ENERGY_TOLERANCE_SHARE = 1e-7
+#: Flag code of a path with an implicit step that ended outside the energy tolerance.
+NOT_CONVERGED = "not-converged"
+#: Halvings of a Newton update that does not lower the residual norm.
+HALVINGS = 8
 
 
 def plank_freezing_time(
@@ -243,6 +260,7 @@ def enthalpy_freezing(
     record_interval: float | None = None,
     stop_at_centre_ice_fraction: float | None = None,
     time_step: float | None = None,
+    max_iterations: int | None = None,
 ) -> FreezingPath:
     """Freeze a 1-D body by the enthalpy method: temperatures and ice fractions vs time.
 
@@ -275,6 +293,9 @@ def enthalpy_freezing(
         Stop early once the centre holds this fraction of its water as ice.
     time_step : float, optional
         Implicit time step [s] (default: the smaller of the record interval and duration / 1000).
+    max_iterations : int, optional
+        Newton updates allowed per time step (default 40 + 4 ``n_cells``); a step still outside the
+        tolerance then is kept and the path flagged ``not-converged`` (:data:`NOT_CONVERGED`).
 
     Returns
     -------
@@ -288,15 +309,81 @@ def enthalpy_freezing(
     uniform grid, flux through the centre zero (symmetry), at the surface q = (T_s - T_bath) /
     (1/h + dr/(2k)). Implicit (backward Euler) in H, unconditionally stable: each step solves
     rho V (H - H_old)/dt = K T(H) by Newton iterations on H with the tridiagonal Jacobian
-    rho V/dt + L dT/dH (conductivities lagged one step); T and f follow from H through a tabulated,
-    monotone H(T), so a latent-heat plateau (dT/dH = 0) needs no smoothing. Conductivity k = k_l + (k_s - k_l) x_w f. Density is taken constant (no volume change
-    on freezing). Validity: the sample's own liquidus and freeze-concentration curve; seeding is taken as
-    instantaneous through the whole sample (ice grows through supercooled liquid far faster than heat
-    leaves it).
+    rho V/dt + L dT/dH (conductivities lagged one step), started from the last two steps' enthalpies
+    extrapolated linearly (from H_old on the first step) and stopped once every shell's energy residual,
+    per kg, is below 1e-7 L x_w; T and f follow from H through a tabulated, monotone H(T), so a latent-heat
+    plateau (dT/dH = 0) needs no smoothing. Conductivity k = k_l + (k_s - k_l) x_w f.
+
+    The Newton iteration is safeguarded against a poor start (a long step, a large h, a start far above
+    the liquidus): (1) no update carries a shell's enthalpy across a kink of T(H) (the liquidus, either
+    end of pure water's plateau - where dT/dH jumps by more than a factor of 2 - or an end of the table):
+    the update stops on the kink and the next one takes the slope of the side it was heading for, so each
+    update works on a near-linear piece of T(H); (2) an update that does not lower the run's largest
+    shell residual (per kg) is halved, up to 8 times (Newton's direction lowers any norm of the residual
+    for a short enough step; the 8th halving is taken as it is), so the residual falls from one update to
+    the next and the iteration does not cycle. A long step may carry the front through every shell, so up
+    to 40 + 4 n updates are allowed. A step still outside the tolerance after them is kept and the path
+    flagged ``not-converged`` with the step's time and the residual left: what follows it is not a
+    solution of the model and no number should be read from it.
+    Density is taken constant (no volume change on freezing).
+    Validity: the sample's own liquidus and freeze-concentration curve; seeding is taken as instantaneous
+    through the whole sample (ice grows through supercooled liquid far faster than heat leaves it).
 
     References
     ----------
     [ref:voller-cross-1981], [ref:carslaw-jaeger-1959]
+    """
+    paths = enthalpy_freezing_runs(
+        geometry, half_dimension, medium, initial_temperature, bath, [heat_transfer_coefficient], duration,
+        n_cells=n_cells, initial_ice=initial_ice, record_interval=record_interval,
+        stop_at_centre_ice_fraction=[stop_at_centre_ice_fraction], time_step=time_step,
+        max_iterations=max_iterations,
+    )
+    return paths[0]
+
+
+def enthalpy_freezing_runs(
+    geometry: str,
+    half_dimension: float,
+    medium: FreezingMedium,
+    initial_temperature: float,
+    bath: Callable[[float], float] | float,
+    heat_transfer_coefficients: Sequence[Callable[[float], float] | float],
+    duration: float,
+    n_cells: int = 32,
+    initial_ice: str = "none",
+    record_interval: float | None = None,
+    stop_at_centre_ice_fraction: Sequence[float | None] | float | None = None,
+    time_step: float | None = None,
+    max_iterations: int | None = None,
+) -> list[FreezingPath]:
+    """:func:`enthalpy_freezing` for several surface coefficients at once: one path per coefficient.
+
+    The same body, medium, start and bath, each run with its own h (constant or a function of time) and,
+    optionally, its own early stop. All runs step together: each implicit step solves one tridiagonal
+    system holding every run's shells as an uncoupled block, and a run that stops leaves the system. Every
+    path equals, to the last bit, what :func:`enthalpy_freezing` gives for that coefficient alone (the
+    blocks share no coefficient, so the elimination of one never touches another, and each run's Newton
+    iteration stops on its own residual).
+
+    Parameters
+    ----------
+    heat_transfer_coefficients : sequence of callable or float
+        One surface coefficient h [W/(m2 K)] per run, as ``heat_transfer_coefficient`` of
+        :func:`enthalpy_freezing`.
+    stop_at_centre_ice_fraction : float, None, or a sequence of them (one per run)
+        Stop a run early once its centre holds this fraction of its water as ice.
+
+    The other parameters, the method and its validity are those of :func:`enthalpy_freezing`.
+
+    Returns
+    -------
+    list of FreezingPath
+        In the order of ``heat_transfer_coefficients``.
+
+    References
+    ----------
+    [ref:voller-cross-1981]
     """
     if geometry not in _GEOMETRY_EXPONENT:
         raise choice_error("geometry", geometry, _GEOMETRY_EXPONENT)
@@ -308,10 +395,21 @@ def enthalpy_freezing(
         raise ModelRangeError("n_cells", n_cells, "an integer from 4 to 400", "enthalpy freezing")
     if initial_ice not in ("none", "equilibrium"):
         raise choice_error("initial_ice", initial_ice, ["none", "equilibrium"])
+    if max_iterations is None:
+        max_iterations = NEWTON_UPDATES_BASE + NEWTON_UPDATES_PER_SHELL * int(n_cells)
+    if not (isinstance(max_iterations, int | np.integer) and 0 <= max_iterations <= 10000):
+        raise ModelRangeError("max_iterations", max_iterations, "an integer from 0 to 10000", "enthalpy freezing")
+    coefficients = list(heat_transfer_coefficients)
+    runs = len(coefficients)
+    if runs == 0:
+        raise ModelRangeError("heat_transfer_coefficients", [], "at least one coefficient", "enthalpy freezing")
+    stops = (list(stop_at_centre_ice_fraction) if isinstance(stop_at_centre_ice_fraction, Sequence)
+             else [stop_at_centre_ice_fraction] * runs)
+    if len(stops) != runs:
+        raise ModelRangeError("stop_at_centre_ice_fraction", stops, f"one value (or None) per run, {runs} here",
+                              "enthalpy freezing")
     bath_at = bath if callable(bath) else (lambda _t, _b=float(bath): _b)
-    h_at = heat_transfer_coefficient if callable(heat_transfer_coefficient) else (
-        lambda _t, _h=float(heat_transfer_coefficient): _h
-    )
+    h_ats = [h if callable(h) else (lambda _t, _h=float(h): _h) for h in coefficients]
     m = _GEOMETRY_EXPONENT[geometry]
     n = int(n_cells)
     dr = half_dimension / n
@@ -337,17 +435,19 @@ def enthalpy_freezing(
         # liquid with no ice: above the liquidus the table's own value; below it the supercooled liquid,
         # which holds the liquid's heat capacity down from the liquidus (the table holds ice there)
         at_liquidus = float(np.interp(medium.liquidus, table_T, table_H))
-        H = np.where(
+        H_start = np.where(
             T0 >= medium.liquidus,
             np.interp(T0, table_T, table_H),
             at_liquidus - medium.heat_capacity_liquid * (medium.liquidus - T0),
         )
     else:
-        H = np.interp(T0, table_T, table_H)
+        H_start = np.interp(T0, table_T, table_H)
 
-    h_probe = sample_in_time(h_at, probe_t)
-    if np.any(~(h_probe > 0)):
-        raise ModelRangeError("heat_transfer_coefficient", h_probe.tolist()[:3], "above 0 W/(m2 K)", "enthalpy freezing")
+    for h_at in h_ats:
+        h_probe = sample_in_time(h_at, probe_t)
+        if np.any(~(h_probe > 0)):
+            raise ModelRangeError("heat_transfer_coefficient", h_probe.tolist()[:3], "above 0 W/(m2 K)",
+                                  "enthalpy freezing")
     record_interval = duration / 400.0 if record_interval is None else float(record_interval)
     if time_step is None:
         time_step = min(record_interval, duration / 1000.0)
@@ -359,122 +459,304 @@ def enthalpy_freezing(
     # bath and h at every step time, sampled once (index = step number; 0 is the start)
     step_times = np.arange(n_steps + 1) * dt
     bath_steps = sample_in_time(bath_at, step_times)
-    h_steps = sample_in_time(h_at, step_times)
     if not np.all(np.isfinite(bath_steps)):
         bad = bath_steps[~np.isfinite(bath_steps)]
         raise ModelRangeError("bath", bad.tolist()[:3], "finite temperatures in K", "enthalpy freezing")
-    if np.any(~(h_steps > 0)):
-        bad = h_steps[~(h_steps > 0)]
-        raise ModelRangeError("heat_transfer_coefficient", bad.tolist()[:3], "above 0 W/(m2 K)", "enthalpy freezing")
+    h_steps = np.empty((runs, n_steps + 1))
+    for r, h_at in enumerate(h_ats):
+        h_steps[r] = sample_in_time(h_at, step_times)
+        if np.any(~(h_steps[r] > 0)):
+            bad = h_steps[r][~(h_steps[r] > 0)]
+            raise ModelRangeError("heat_transfer_coefficient", bad.tolist()[:3], "above 0 W/(m2 K)",
+                                  "enthalpy freezing")
+    # surface resistance 1/h of every run at every step (1/inf = 0: the surface held at the bath)
+    surface_resistance = 1.0 / h_steps
 
     rho_v = medium.density * volume
     mass_weight = volume / volume.sum()
     dk = medium.conductivity_ice - medium.conductivity_liquid
-    times, baths, centre_T, surface_T, mean_T, centre_f, mean_f, prof_T, prof_f = ([] for _ in range(9))
-    energy_tolerance = 1e-7 * lat * max(xw, 1e-3)  # J/kg: residual accepted per shell
-    worst_residual = 0.0
-
-    def state(H_now: np.ndarray, T_now: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-        # T_now: T(H_now) when already known
-        T_now = np.interp(H_now, table_H, table_T) if T_now is None else T_now
-        # np.minimum/np.maximum: the same values as np.clip, at a fraction of its call cost
-        f_now = np.minimum(np.maximum(1.0 - (H_now - np.interp(T_now, table_T, table_S)) / (lat * xw), 0.0), 1.0)
-        return T_now, f_now
+    energy_tolerance = ENERGY_TOLERANCE_SHARE * lat * max(xw, 1e-3)  # J/kg: residual accepted per shell
+    worst_residual = [0.0] * runs
+    # recorded states of each run: step numbers and the shells' T and f
+    records: list[dict[str, list]] = [{"step": [], "T": [], "f": []} for _ in range(runs)]
 
     slope_table = np.diff(table_T) / np.diff(table_H)  # dT/dH on each table interval
-    last_interval = table_H.size - 2
+    # dT/dH at H: the slope of the table interval holding H, the first or last interval beyond the table;
+    # padded so that the index is np.searchsorted(table_H, H) itself
+    slope_padded = np.concatenate([slope_table[:1], slope_table, slope_table[-1:]])
+    # Kinks of T(H): table enthalpies where the slope dT/dH changes by more than a factor of 2 between the
+    # intervals either side (the liquidus; both ends of pure water's plateau), and the two ends of the table.
+    # No Newton update carries a shell's enthalpy across one: it stops on it, and the next update takes the
+    # slope of the side it was heading for. Between kinks T(H) is close to linear and Newton's linear model
+    # holds. With -inf and +inf at the ends, so that every enthalpy in the table has a kink below and above.
+    ratio = slope_table[1:] / slope_table[:-1]
+    is_kink = np.concatenate([[True], (ratio > 2.0) | (ratio < 0.5), [True]])  # per table enthalpy
+    kink_H = np.concatenate([[-np.inf], table_H[is_kink], [np.inf]])
+    # number of kinks below an enthalpy H, by its table index np.searchsorted(table_H, H): an update that
+    # leaves it unchanged crosses no kink (the common case, which needs no stop)
+    kinks_below = np.concatenate([[0], np.cumsum(is_kink)])
+    fraction_scale = lat * xw
+    interp = _interp  # np.interp on real arrays, to the last bit (tests/test_freezing.py)
+    minimum, maximum = np.minimum, np.maximum
+    largest, smallest, anyof = np.maximum.reduce, np.minimum.reduce, np.logical_or.reduce
 
-    def slope(H_now: np.ndarray) -> np.ndarray:
-        i = np.minimum(np.maximum(np.searchsorted(table_H, H_now) - 1, 0), last_interval)
-        return slope_table[i]
+    # the ice fraction of the water at H, 1 - (H - S(T(H))) / (L x_w), and the conductivity
+    # k = k_l + (k_s - k_l) x_w f are linear in H on each table interval, like T and S: tabulated on the
+    # same enthalpies
+    table_F = minimum(maximum(1.0 - (table_H - table_S) / fraction_scale, 0.0), 1.0)
+    table_k = medium.conductivity_liquid + dk * xw * table_F
 
-    def record(step_now: int, T_now: np.ndarray, f_now: np.ndarray) -> None:
-        times.append(step_times[step_now] if step_now else 0.0)
-        baths.append(float(bath_steps[step_now]))
-        centre_T.append(T_now[0])
-        surface_T.append(T_now[-1])
-        mean_T.append(float(mass_weight @ T_now))
-        centre_f.append(f_now[0])
-        mean_f.append(float(mass_weight @ f_now))
-        prof_T.append(T_now.copy())
-        prof_f.append(f_now.copy())
+    def record(run: int, step_now: int, T_now: np.ndarray, f_now: np.ndarray) -> None:
+        rec = records[run]
+        rec["step"].append(step_now)
+        rec["T"].append(T_now.copy())
+        rec["f"].append(f_now.copy())
 
-    T, f = state(H)
-    record(0, T, f)
-    # constants of the step loop, hoisted (the same floating-point operations as written in the loop)
-    dk_xw = dk * xw
+    # The runs still going, side by side in one flat array of len(live) * n shells (run after run, each from
+    # its centre out). A face between two runs has no area: no heat crosses it, and the Newton system is
+    # block-diagonal (its off-diagonal entries there are zero).
+    live = list(range(runs))
+    stop_live = list(stops)
+    H = np.tile(H_start, runs)
+    T = interp(H, table_H, table_T)
+    f = interp(H, table_H, table_F)
+    k = interp(H, table_H, table_k)
+    for r in live:
+        record(r, 0, T[r * n:(r + 1) * n], f[r * n:(r + 1) * n])
+    # constants of the step loop
     storage_rate = rho_v / dt
     inner_area, surface_area = area[1:-1], area[-1]
-    for step in range(1, n_steps + 1):
-        k = medium.conductivity_liquid + dk_xw * f  # lagged one step
-        half_resistance = dr / (2 * k)
-        g = inner_area / (half_resistance[:-1] + half_resistance[1:])
-        h_now = float(h_steps[step])
-        g_s = surface_area / (half_resistance[-1] + (0.0 if math.isinf(h_now) else 1.0 / h_now))
-        t_bath = float(bath_steps[step])
-        diag_l = np.zeros(n)
-        diag_l[:-1] += g
-        diag_l[1:] += g
-        diag_l[-1] += g_s
-        H_old = H_new = H  # never changed in place: each Newton update makes a new array
-        converged = False
-        for _ in range(40):
-            T_new = np.interp(H_new, table_H, table_T)
-            conduction = -diag_l * T_new
-            conduction[:-1] += g * T_new[1:]
-            conduction[1:] += g * T_new[:-1]
-            conduction[-1] += g_s * t_bath
-            residual = rho_v * (H_new - H_old) / dt - conduction
-            scaled = np.abs(residual * dt / rho_v).max()
-            if scaled < energy_tolerance:
-                converged = True
+
+    def stacked(count: int) -> tuple[np.ndarray, ...]:
+        # per-shell constants of ``count`` runs side by side; face areas of the flat array's n * count - 1
+        # inner faces (zero between runs); a buffer for the conductances with a zero at both ends
+        faces_flat = np.tile(np.append(inner_area, 0.0), count)[:-1]
+        return np.tile(rho_v, count), np.tile(storage_rate, count), faces_flat, np.zeros(n * count + 1)
+
+    def stopped_at_kinks(H_at: np.ndarray, H_to: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        # H_to, stopped at the nearest kink between H_at and it; and the shells stopped on a kink from below
+        above = kink_H[kink_H.searchsorted(H_at, side="right")]
+        below = kink_H[kink_H.searchsorted(H_at, side="left") - 1]
+        H_to = minimum(maximum(H_to, below), above)
+        return H_to, H_to == above
+
+    def halved(H_at, neg_correction, H_try, run_at, run_try, worse, system, count):
+        # halve the update of each run whose largest shell residual did not fall, and only theirs, until it
+        # falls (the last halving taken as it is)
+        for _ in range(HALVINGS):
+            shells = np.repeat(worse, n)
+            neg_correction[shells] *= 0.5
+            H_half, _ = stopped_at_kinks(H_at, H_at - neg_correction)
+            H_try = np.where(shells, H_half, H_try)
+            T_try = interp(H_try, table_H, table_T)
+            residual_try, shell_try = _energy_residual(H_try, T_try, *system)
+            run_half = largest(shell_try.reshape(count, n), axis=1)
+            run_try = np.where(worse, run_half, run_try)
+            worse &= ~(run_half < run_at)
+            if not worse.any():
                 break
-            if not np.isfinite(scaled):
+        _, upward = stopped_at_kinks(H_at, H_try)
+        return H_try, T_try, residual_try, shell_try, run_try, upward
+
+    rho_v_flat, storage_flat, area_flat, conductance = stacked(runs)
+    storage_negative = -storage_flat
+    half_dr = dr / 2
+    # the surface resistance 1/h of the live runs at each step (rows: steps)
+    resistance_live = np.ascontiguousarray(surface_resistance.T)
+    H_prev = None
+    worst_shell = np.zeros(runs * n)  # largest residual each shell has been left with [J/kg]
+    # per run: implicit steps that ended outside the tolerance, and the first of them (time [s], residual)
+    unconverged_steps = [0] * runs
+    first_unconverged: list[tuple[float, float] | None] = [None] * runs
+    for step in range(1, n_steps + 1):
+        count = len(live)
+        half_resistance = half_dr / k  # dr / (2 k), to the last bit (halving is exact)
+        g = conductance[1:-1]  # conductance of each inner face (0 between runs)
+        np.divide(area_flat, half_resistance[:-1] + half_resistance[1:], out=g)
+        g_s = surface_area / (half_resistance[n - 1::n] + resistance_live[step])
+        # sum of the conductances of each shell's faces (the surface film's added below)
+        diag_l = conductance[1:] + conductance[:-1]
+        diag_l[n - 1::n] += g_s
+        neg_g = -g
+        surface_source = g_s * bath_steps[step]
+        # Newton iterations on H, from the last two steps' values extrapolated to this one (from H_old on the
+        # first step); T_new = T(H_new). ``outflow`` is minus the conduction term K T of the notes, so
+        # residual = (rho V/dt) (H - H_old) + outflow, and the Newton system J (-correction) = residual gives
+        # the correction negated.
+        H_old = H
+        if H_prev is None:
+            H_try, T_try = H, T
+        else:
+            H_try = minimum(maximum(H + (H - H_prev), table_H[0]), table_H[-1])
+            T_try = interp(H_try, table_H, table_T)
+        # the part of the residual fixed through the step: -(rho V/dt) H_old, less the surface film's source
+        fixed = storage_negative * H_old
+        fixed[n - 1::n] -= surface_source
+        system = (fixed, storage_flat, diag_l, g)
+        # H_try: the start, then each Newton update in turn; H_new: the last one taken
+        H_new = neg_correction = run_worst = done = None  # run_worst: largest shell residual of each run
+        worst_now, some_done = math.inf, False
+        piece = region = upward = None  # table index of each H, kinks below it, shells stopped on one from below
+        for iteration in range(max_iterations + 1):
+            # the energy residual at H_try (what _energy_residual computes, written out in this busiest loop)
+            outflow = diag_l * T_try
+            outflow[:-1] -= g * T_try[1:]
+            outflow[1:] -= g * T_try[:-1]
+            outflow += fixed
+            residual_try = storage_flat * H_try
+            residual_try += outflow
+            shell_try = np.abs(residual_try / storage_flat)
+            worst_try = float(largest(shell_try))
+            if H_new is not None:
+                # An update is taken whole when it lowers the run's largest shell residual; otherwise halved
+                # (up to HALVINGS times, the last one taken as it is), so that the residual falls from one
+                # update to the next and the iteration cannot cycle.
+                if run_worst is None:
+                    if not worst_try < worst_now:
+                        H_try, T_try, residual_try, shell_try, _, upward = halved(
+                            H_new, neg_correction, H_try, np.array([worst_now]), np.array([worst_try]),
+                            np.array([True]), system, 1)
+                        worst_try, piece_try = float(largest(shell_try)), None
+                else:
+                    run_try = largest(shell_try.reshape(count, n), axis=1)
+                    worse = run_try >= run_worst  # (a NaN passes here and is refused below)
+                    if some_done:
+                        worse &= ~done
+                    if anyof(worse):
+                        H_try, T_try, residual_try, shell_try, run_try, upward = halved(
+                            H_new, neg_correction, H_try, run_worst, run_try, worse, system, count)
+                        worst_try, piece_try = float(largest(shell_try)), None
+                    run_worst = run_try
+                if piece_try is None:
+                    piece_try = table_H.searchsorted(H_try)
+                    region_try = kinks_below[piece_try]
+                piece, region = piece_try, region_try
+            H_new, T_new, residual, shell_residual, worst_now = H_try, T_try, residual_try, shell_try, worst_try
+            if worst_now < energy_tolerance:  # every run converged (NaN never is)
+                break
+            if not math.isfinite(worst_now):
                 raise ModelRangeError("medium", "energy residual not finite", "finite properties and inputs",
                                       "enthalpy freezing")
-            s = slope(H_new)
-            # tridiagonal Newton system (LAPACK gtsv, as scipy.linalg.solve_banded uses for (1, 1))
-            _, _, _, correction, info = dgtsv(-g * s[:-1], storage_rate + diag_l * s, -g * s[1:], -residual)
+            if count > 1 and run_worst is None:
+                run_worst = largest(shell_residual.reshape(count, n), axis=1)
+            if iteration == max_iterations:
+                for row, r in enumerate(live):
+                    left = worst_now if run_worst is None else float(run_worst[row])
+                    if not left < energy_tolerance:
+                        unconverged_steps[r] += 1
+                        if first_unconverged[r] is None:
+                            first_unconverged[r] = (float(step_times[step]), left)
+                break
+            if piece is None:
+                piece = table_H.searchsorted(H_new)
+                region = kinks_below[piece]
+            # dT/dH of each shell's table interval; a shell stopped on a kink from below takes the one above it
+            s = slope_padded[piece if upward is None else piece + upward]
+            # tridiagonal Newton system of all runs (LAPACK gtsv, what scipy.linalg.solve_banded uses for (1, 1))
+            _, _, _, neg_correction, info = dgtsv(neg_g * s[:-1], storage_flat + diag_l * s, neg_g * s[1:],
+                                                  residual, overwrite_b=True)
             if info != 0:
                 raise ModelRangeError("medium", f"singular Newton system (LAPACK info {info})",
                                       "a solvable implicit step", "enthalpy freezing")
-            H_new = H_new + correction
-        worst_residual = max(worst_residual, float(scaled))
-        H = H_new
-        T, f = state(H, T_new if converged else None)
+            some_done = run_worst is not None and smallest(run_worst) < energy_tolerance
+            if some_done:
+                # a run already within tolerance keeps its enthalpy (as it would if solved alone)
+                done = run_worst < energy_tolerance
+                neg_correction.reshape(count, n)[done] = 0.0
+            # the Newton update, stopped at the nearest kink on its way when it would cross one
+            H_try = H_new - neg_correction
+            piece_try = table_H.searchsorted(H_try)
+            region_try = kinks_below[piece_try]
+            upward = None
+            if anyof(region_try != region):
+                H_try, upward = stopped_at_kinks(H_new, H_try)
+                piece_try = None
+            T_try = interp(H_try, table_H, table_T)
+        maximum(worst_shell, shell_residual, out=worst_shell)
+        H_prev, H, T = H, H_new, T_new
+        k = interp(H, table_H, table_k)  # the next step's conductivities (lagged one step)
         if step % record_every == 0 or step == n_steps:
-            record(step, T, f)
-            if stop_at_centre_ice_fraction is not None and f[0] >= stop_at_centre_ice_fraction:
-                break
-    flags = []
-    if worst_residual > 1e3 * energy_tolerance:
-        flags.append(Flag(
-            "indicative",
-            f"enthalpy iterations left an energy residual of {worst_residual:.3g} J/kg in a shell",
-            "voller-cross-1981",
-        ))
+            f = interp(H, table_H, table_F)
+            keep = []
+            for row, r in enumerate(live):
+                record(r, step, T[row * n:(row + 1) * n], f[row * n:(row + 1) * n])
+                if stop_live[row] is None or f[row * n] < stop_live[row]:
+                    keep.append(row)
+            if len(keep) < count:
+                for row, r in enumerate(live):
+                    worst_residual[r] = float(worst_shell[row * n:(row + 1) * n].max())
+                if not keep:
+                    break
+                shells = np.concatenate([np.arange(row * n, (row + 1) * n) for row in keep])
+                live = [live[row] for row in keep]
+                stop_live = [stop_live[row] for row in keep]
+                H, H_prev, T, k = H[shells], H_prev[shells], T[shells], k[shells]
+                worst_shell = worst_shell[shells]
+                resistance_live = np.ascontiguousarray(resistance_live[:, keep])
+                rho_v_flat, storage_flat, area_flat, conductance = stacked(len(live))
+                storage_negative = -storage_flat
 
-    return FreezingPath(
-        model="enthalpy method, 1-D finite volume, implicit",
-        source="voller-cross-1981",
-        parameters={
-            "geometry": geometry, "half_dimension_m": half_dimension, "n_cells": n, "time_step_s": dt,
-            "initial_temperature_k": float(initial_temperature), "initial_ice": initial_ice,
-            "worst_energy_residual_j_per_kg": worst_residual,
-            "density_kg_m3": medium.density, "water_mass_fraction": xw, "liquidus_k": medium.liquidus,
-        },
-        flags=flags,
-        time=np.asarray(times),
-        bath_temperature=np.asarray(baths, dtype=float),
-        centre_temperature=np.asarray(centre_T),
-        surface_temperature=np.asarray(surface_T),
-        mean_temperature=np.asarray(mean_T),
-        centre_ice_fraction=np.asarray(centre_f),
-        mean_ice_fraction=np.asarray(mean_f),
-        radius=centres,
-        profile_temperature=np.asarray(prof_T),
-        profile_ice_fraction=np.asarray(prof_f),
-    )
+    for row, r in enumerate(live):
+        worst_residual[r] = float(worst_shell[row * n:(row + 1) * n].max())
+    paths = []
+    for r in range(runs):
+        flags = []
+        if first_unconverged[r] is not None:
+            at, left = first_unconverged[r]
+            flags.append(Flag(
+                NOT_CONVERGED,
+                f"the implicit step ending at t = {at:.6g} s did not converge within {max_iterations} Newton "
+                f"updates: an energy residual of {left:.3g} J/kg is left in a shell (tolerance "
+                f"{energy_tolerance:.3g} J/kg); {unconverged_steps[r]} step(s) in all ended so, the worst with "
+                f"{worst_residual[r]:.3g} J/kg. Temperatures and ice fractions after it are not solutions of the "
+                "model and must not be used",
+                "voller-cross-1981",
+            ))
+        rec = records[r]
+        steps_done = np.asarray(rec["step"])
+        profile_T, profile_f = np.asarray(rec["T"]), np.asarray(rec["f"])
+        paths.append(FreezingPath(
+            model="enthalpy method, 1-D finite volume, implicit",
+            source="voller-cross-1981",
+            parameters={
+                "geometry": geometry, "half_dimension_m": half_dimension, "n_cells": n, "time_step_s": dt,
+                "initial_temperature_k": float(initial_temperature), "initial_ice": initial_ice,
+                "worst_energy_residual_j_per_kg": worst_residual[r],
+                "energy_tolerance_j_per_kg": energy_tolerance, "newton_updates_allowed": int(max_iterations),
+                "unconverged_steps": unconverged_steps[r],
+                "first_unconverged_step_time_s": None if first_unconverged[r] is None else first_unconverged[r][0],
+                "density_kg_m3": medium.density, "water_mass_fraction": xw, "liquidus_k": medium.liquidus,
+            },
+            flags=flags,
+            time=step_times[steps_done],
+            bath_temperature=bath_steps[steps_done],
+            centre_temperature=profile_T[:, 0].copy(),
+            surface_temperature=profile_T[:, -1].copy(),
+            mean_temperature=profile_T @ mass_weight,
+            centre_ice_fraction=profile_f[:, 0].copy(),
+            mean_ice_fraction=profile_f @ mass_weight,
+            radius=centres,
+            profile_temperature=profile_T,
+            profile_ice_fraction=profile_f,
+        ))
+    return paths
+
+
+def _energy_residual(H: np.ndarray, T: np.ndarray, fixed: np.ndarray, storage: np.ndarray, diag_l: np.ndarray,
+                     g: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Energy residual of every shell of an implicit step (a heat rate) and its size per kg of shell [J/kg].
+
+    residual = (rho V/dt) (H - H_old) + outflow, the outflow being minus the conduction term K T of
+    :func:`enthalpy_freezing`'s notes: faces' conductances ``g``, their sums ``diag_l`` (the surface film's
+    included); ``fixed`` = -(rho V/dt) H_old less the surface film's source g_s T_bath at the surface shells.
+    """
+    outflow = diag_l * T
+    outflow[:-1] -= g * T[1:]
+    outflow[1:] -= g * T[:-1]
+    outflow += fixed
+    residual = storage * H
+    residual += outflow
+    return residual, np.abs(residual / storage)
 
 
 def sample_in_time(fn: Callable[[float], float], times: ArrayLike) -> np.ndarray:

@@ -6,6 +6,7 @@ validates every key and converts once to SI. The objects below are what every ot
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -195,11 +196,17 @@ GEOMETRY_TOLERANCE = 0.02  # given dimensions and volume must agree to 2 %
 
 def _data_keys(filename: str) -> list[str]:
     """Top-level keys of a packaged data file (the words a protocol may use for it)."""
+    return list(_packaged_keys(filename))
+
+
+@functools.cache
+def _packaged_keys(filename: str) -> tuple[str, ...]:
+    # read once per process: the app validates the whole draft on every keystroke
     from importlib import resources
 
     text = resources.files("planner").joinpath(f"data/{filename}").read_text(encoding="utf-8")
     data = load_yaml(text, filename)
-    return [str(k) for k in data]
+    return tuple(str(k) for k in data)
 
 
 def _is_number(value: Any) -> bool:

@@ -21,7 +21,9 @@ class Flag:
     ``code`` is one of a small set of plain words: ``extrapolated`` (a model used outside its fitted
     range), ``missing-data`` (a quantity could not be computed for lack of data), ``default-used``
     (the planner chose a documented default because the protocol was silent), ``indicative`` (a model
-    whose parameters are rough), ``refused`` (a quantity the planner will not compute here).
+    whose parameters are rough), ``refused`` (a quantity the planner will not compute here),
+    ``not-converged`` (a numerical solution left a step outside its tolerance: the numbers taken from it
+    are withheld as None, and the flag gives the step's time and the residual).
     """
 
     code: str

@@ -9,8 +9,12 @@ import yaml
 
 from planner.errors import InputError
 
+# libyaml's parser when PyYAML was built with it (about 5x quicker on the packaged data files, which the
+# app reads while its first page is built); the constructors, and so every check below, are the same.
+_BASE = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
 
-class _StrictLoader(yaml.SafeLoader):
+
+class _StrictLoader(_BASE):
     """SafeLoader that refuses duplicate mapping keys (YAML allows them; a planner must not)."""
 
 

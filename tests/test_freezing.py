@@ -258,3 +258,161 @@ def test_enthalpy_freezing_refuses_a_bath_or_h_that_fails_between_probe_times():
     with pytest.raises(ModelRangeError, match="heat_transfer_coefficient"):
         enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 - 3.0, T0 - 10.0, h, duration=1800.0, n_cells=8,
                           time_step=1.0)
+
+
+def test_runs_solved_together_equal_runs_solved_alone():
+    # several surface coefficients in one stacked solve (uncoupled blocks, each run's Newton iteration
+    # stopping on its own residual): every path must be the one the run gives alone, to the last bit
+    from planner.freezing import enthalpy_freezing_runs
+
+    medium = _dilute_solution(2.0)
+    bath = lambda t: T0 - 5.0 - np.asarray(t) / 120.0  # 0.5 K/min from -5 C  # noqa: E731
+    coefficients = [25.0, lambda t: np.where(np.asarray(t) < 900.0, 60.0, 120.0), np.inf]
+    stops = [None, 0.5, 0.8]
+    together = enthalpy_freezing_runs("cylinder", 0.005, medium, T0 - 4.0, bath, coefficients, duration=3600.0,
+                                      n_cells=12, stop_at_centre_ice_fraction=stops)
+    assert len(together) == 3
+    assert together[2].time[-1] < together[1].time[-1] < together[0].time[-1]  # the early stops took effect
+    for h, stop, path in zip(coefficients, stops, together, strict=True):
+        alone = enthalpy_freezing("cylinder", 0.005, medium, T0 - 4.0, bath, h, duration=3600.0, n_cells=12,
+                                  stop_at_centre_ice_fraction=stop)
+        for name in ("time", "bath_temperature", "centre_temperature", "surface_temperature", "mean_temperature",
+                     "centre_ice_fraction", "mean_ice_fraction", "profile_temperature", "profile_ice_fraction"):
+            assert np.array_equal(getattr(path, name), getattr(alone, name)), name
+        assert path.parameters == alone.parameters
+
+
+def test_runs_refuse_a_stop_list_of_the_wrong_length():
+    from planner.freezing import enthalpy_freezing_runs
+
+    with pytest.raises(ModelRangeError, match="stop_at_centre_ice_fraction"):
+        enthalpy_freezing_runs("slab", 0.005, pure_water_medium(), T0, T0 - 5.0, [50.0, 100.0], duration=60.0,
+                               n_cells=8, stop_at_centre_ice_fraction=[0.5])
+
+
+@pytest.mark.parametrize(
+    ("geometry", "initial", "h", "kwargs"),
+    [
+        # the Plank comparison's sphere at h = 50 W/(m2 K), run until its centre has frozen
+        pytest.param("sphere", T0, 50.0, {"n_cells": 48, "stop_at_centre_ice_fraction": 0.999}, id="sphere-h50"),
+        # the Neumann comparison with 5 K of superheat, surface held at the bath
+        pytest.param("slab", T0 + 5.0, np.inf, {"n_cells": 200, "record_interval": 300.0, "time_step": 2.0},
+                     id="slab-surface-held"),
+    ],
+)
+def test_enthalpy_temperatures_stay_between_bath_and_start(geometry, initial, h, kwargs):
+    # Maximum principle of heat conduction (a standard property of the heat equation, from memory): with
+    # the bath held constant below a sample that starts at or above its freezing point, no point of the
+    # sample ever falls below the bath nor rises above its start. Every implicit step must also converge
+    # (no "not-converged" flag for an energy residual left behind).
+    bath = T0 - 5.0 if geometry == "sphere" else T0 - 10.0
+    # as long as in the comparisons above: twice Plank's time for the sphere, 30 min for the slab
+    duration = (2 * plank_freezing_time("sphere", 0.02, WATER_DENSITY, LATENT_HEAT_FUSION, T0, bath, h,
+                                        ICE_CONDUCTIVITY) if geometry == "sphere" else 1800.0)
+    path = enthalpy_freezing(geometry, 0.01 if geometry == "sphere" else 0.05, pure_water_medium(), initial, bath,
+                             h, duration=duration, **kwargs)
+    assert [f.code for f in path.flags] == []
+    assert path.profile_temperature.min() >= bath - 1e-6
+    assert path.profile_temperature.max() <= initial + 1e-6
+
+
+# --- the Newton iteration converges from any start, or says that it did not ------------------------------------
+# Invented hard cases: long steps, a large or infinite h, starts far above the liquidus or deep in supercooled
+# liquid. Each run's first implicit step starts its Newton iteration from the previous step's enthalpies; a
+# plain Newton iteration from there left energy residuals of 5e7-1e10 J/kg and temperatures 5 K beyond the
+# bath (the end of its table), and in three cases shells 14-95 K away from the bath at the end, in all but
+# the second case. The second
+# defeats stopping the updates at the kinks of T(H) without halving them: that iteration cycles there.
+HARD_CASES = [
+    pytest.param("slab", pure_water_medium(), 20.0, -30.0, np.inf, 300.0, 32, id="slab-water-held-surface-300s"),
+    pytest.param("slab", pure_water_medium(), 30.0, -60.0, 100.0, 100.0, 8, id="slab-water-h100-100s"),
+    pytest.param("sphere", pure_water_medium(), 30.0, -60.0, 1e5, 300.0, 24, id="sphere-water-h1e5-300s"),
+    pytest.param("sphere", pure_water_medium(), 30.0, -60.0, 1e4, 100.0, 64, id="sphere-water-h1e4-100s-64"),
+    pytest.param("cylinder", _dilute_solution(2.0), 30.0, -60.0, 1e4, 300.0, 24, id="cylinder-solution-300s"),
+    pytest.param("cylinder", _dilute_solution(0.3), -8.0, -60.0, np.inf, 1000.0, 24,
+                 id="cylinder-supercooled-solution-1000s"),
+]
+
+
+@pytest.mark.parametrize(("geometry", "medium", "start_c", "bath_c", "h", "step", "cells"), HARD_CASES)
+def test_newton_converges_where_the_previous_enthalpies_are_a_poor_start(geometry, medium, start_c, bath_c, h,
+                                                                         step, cells):
+    start, bath = T0 + start_c, T0 + bath_c
+    path = enthalpy_freezing(geometry, 0.005, medium, start, bath, h, duration=20 * step, n_cells=cells,
+                             time_step=step)
+    assert [f.code for f in path.flags] == []
+    assert path.parameters["unconverged_steps"] == 0
+    assert path.parameters["worst_energy_residual_j_per_kg"] < path.parameters["energy_tolerance_j_per_kg"]
+    # maximum principle (a standard property of the heat equation, from memory): with the bath constant, no
+    # shell falls below the bath nor rises above the warmer of the start and (recalescence) the liquidus.
+    # Allowance: the energy tolerance, 1e-7 L = 0.033 J/kg per step, is 1.6e-5 K of ice; 1e-4 K is a few steps'.
+    assert path.profile_temperature.min() >= bath - 1e-4
+    assert path.profile_temperature.max() <= max(start, medium.liquidus) + 1e-6
+    # after 20 long steps the whole sample sits at the bath, with its equilibrium ice there: all of pure
+    # water, 1 - dT_f / (T_m - T) of an ideal dilute solution (Blagden's law: the depression is proportional
+    # to the molality, which the ice concentrates by 1 / (1 - f); from memory)
+    assert path.profile_temperature[-1] == pytest.approx(np.full(cells, bath), abs=0.01)
+    equilibrium = float(medium.ice_fraction(np.array([bath]))[0])
+    assert path.profile_ice_fraction[-1] == pytest.approx(np.full(cells, equilibrium), abs=1e-3)
+
+
+def test_hard_runs_solved_together_equal_runs_solved_alone():
+    # the halving of an update is decided run by run: a run that needs it leaves the others' updates alone
+    from planner.freezing import enthalpy_freezing_runs
+
+    coefficients, stops = [100.0, 1e4, np.inf], [None, 0.9, None]
+    together = enthalpy_freezing_runs("sphere", 0.005, pure_water_medium(), T0 + 30.0, T0 - 60.0, coefficients,
+                                      duration=2000.0, n_cells=16, time_step=100.0, stop_at_centre_ice_fraction=stops)
+    for h, stop, path in zip(coefficients, stops, together, strict=True):
+        alone = enthalpy_freezing("sphere", 0.005, pure_water_medium(), T0 + 30.0, T0 - 60.0, h, duration=2000.0,
+                                  n_cells=16, time_step=100.0, stop_at_centre_ice_fraction=stop)
+        assert [f.code for f in path.flags] == []
+        for name in ("time", "centre_temperature", "mean_temperature", "profile_temperature", "profile_ice_fraction"):
+            assert np.array_equal(getattr(path, name), getattr(alone, name)), name
+        assert path.parameters == alone.parameters
+
+
+def test_a_step_that_does_not_converge_is_flagged_with_its_time_and_residual():
+    # no Newton update allowed: the first step keeps its start, far from the solution
+    path = enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 + 5.0, T0 - 20.0, 500.0, duration=600.0,
+                             n_cells=12, time_step=10.0, max_iterations=0)
+    flags = [f for f in path.flags if f.code == "not-converged"]
+    assert len(flags) == 1
+    assert "t = 10 s" in flags[0].message and "0 Newton updates" in flags[0].message
+    assert f"{path.parameters['worst_energy_residual_j_per_kg']:.3g} J/kg" in flags[0].message
+    assert path.parameters["first_unconverged_step_time_s"] == pytest.approx(10.0)
+    assert path.parameters["unconverged_steps"] >= 1
+    assert path.parameters["worst_energy_residual_j_per_kg"] > path.parameters["energy_tolerance_j_per_kg"]
+    # the same case with the default allowance converges and carries no flag
+    solved = enthalpy_freezing("slab", 0.005, pure_water_medium(), T0 + 5.0, T0 - 20.0, 500.0, duration=600.0,
+                               n_cells=12, time_step=10.0)
+    assert solved.flags == [] and solved.parameters["first_unconverged_step_time_s"] is None
+
+
+def test_stacked_runs_flag_only_the_run_that_did_not_converge():
+    from planner.freezing import enthalpy_freezing_runs
+
+    # one update per step: enough for a slow surface (a small change per step), not for a held surface
+    slow, held = enthalpy_freezing_runs("slab", 0.005, pure_water_medium(), T0 + 5.0, T0 - 20.0, [5.0, np.inf],
+                                        duration=600.0, n_cells=12, time_step=10.0, max_iterations=1)
+    assert [f.code for f in held.flags] == ["not-converged"]
+    assert "not-converged" not in [f.code for f in slow.flags]
+
+
+def test_max_iterations_must_be_a_whole_number_of_updates():
+    with pytest.raises(ModelRangeError, match="max_iterations"):
+        enthalpy_freezing("slab", 0.005, pure_water_medium(), T0, T0 - 5.0, 100.0, duration=60.0, max_iterations=-1)
+    with pytest.raises(ModelRangeError, match="max_iterations"):
+        enthalpy_freezing("slab", 0.005, pure_water_medium(), T0, T0 - 5.0, 100.0, duration=60.0, max_iterations=2.5)
+
+
+def test_the_solver_interpolates_exactly_as_numpy_interp():
+    # the enthalpy method calls numpy's compiled interpolation directly: on real arrays it must equal
+    # np.interp to the last bit, inside, at the nodes of and beyond the table
+    from planner.freezing import _interp
+
+    rng = np.random.default_rng(5)
+    xp = np.cumsum(rng.uniform(0.01, 1.0, 200))
+    fp = rng.normal(0.0, 1.0, 200)
+    x = np.concatenate([rng.uniform(xp[0] - 5.0, xp[-1] + 5.0, 500), xp, [xp[0] - 1.0, xp[-1] + 1.0]])
+    assert np.array_equal(_interp(x, xp, fp), np.interp(x, xp, fp))

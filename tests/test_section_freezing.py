@@ -193,3 +193,36 @@ def test_record_carries_the_unfrozen_fraction_curve():
     assert len(c["time_h"]) == len(c["mean_unfrozen_fraction"]) <= 80
     fractions = [v for v in c["mean_unfrozen_fraction"] if v is not None]
     assert all(0.0 <= v <= 1.0 for v in fractions) and fractions[-1] < fractions[0]
+
+
+def test_a_freezing_path_that_does_not_converge_gives_no_freezing_time(monkeypatch):
+    # No Newton update allowed: the solver keeps each step's start and flags the path ``not-converged``. The
+    # section must then give no freezing time, plateau or centre ice (None, never a number from that path),
+    # carry the flag with the step time and residual, and draw or record no freezing curve.
+    from planner.assessment import assess
+
+    monkeypatch.setattr(section, "NEWTON_UPDATES", 0)
+    p = protocol(GLYCEROL10, SEEDED_HOLD, "glycerol seeded at -6 C and held")
+    out = section.build(p, context_for(p, ("solution", "thermal")))
+    r = out.report
+    nominal = [f for f in r.flags if f.code == "not-converged" and not f.message.startswith("at the ")]
+    assert len(nominal) == 1 and "t = " in nominal[0].message and "J/kg is left" in nominal[0].message
+    for end in ("high", "low"):  # the bracket runs' flags say which end of the h range they are about
+        assert any(f.code == "not-converged" and f.message.startswith(f"at the {end} end of the h range")
+                   for f in r.flags)
+    assert r.freezing_time_min is None and r.freezing_time_range_min == [None, None]
+    assert r.plateau_c is None and r.frozen_by_end_of_leg is None and r.centre_ice_fraction_at_leg_end is None
+    assert r.curve is None and out.state is None
+    assert any("did not converge" in note for note in r.notes)
+    d = to_jsonable(r)
+    assert d["freezing_time_min"] is None and "not-converged" in [f["code"] for f in d["flags"]]
+    # the whole assessment carries the flag too, and its JSON keeps the time null
+    whole = assess(p)
+    assert any(f.code == "not-converged" and f.message.startswith("freezing: ") for f in whole.flags)
+    assert whole.to_dict()["freezing"]["freezing_time_min"] is None
+
+
+def test_the_converged_path_carries_no_convergence_flag(held):
+    r = held[2].report
+    assert "not-converged" not in [f.code for f in r.flags]
+    assert r.freezing_time_min is not None and held[2].state is not None

@@ -265,6 +265,21 @@ def test_voila_command_binds_loopback_with_token_and_no_sources():
     assert sorted(denied) == ["archive.ipynb", "calibrate.ipynb", "compare.ipynb"]
 
 
+def test_the_app_command_keeps_one_kernel_ready_unless_told_otherwise():
+    """The person who starts the server opens the page next: one pre-started kernel has run the notebook by
+    then (the page opens in ~2 s, not ~6 s; benchmarks/bench_app.py). ``--pool 0`` keeps none."""
+    import argparse
+
+    from planner.serve import add_app_arguments, config_from_args, voila_command
+
+    parser = argparse.ArgumentParser()
+    add_app_arguments(parser)
+    default = config_from_args(parser.parse_args([]))
+    assert default.pool == 1 and "--pool_size=1" in voila_command(default, 9999)
+    none = config_from_args(parser.parse_args(["--pool", "0"]))
+    assert none.pool == 0 and not any(c.startswith("--preheat_kernel") for c in voila_command(none, 9999))
+
+
 def test_voila_environment_uses_its_own_jupyter_folders(tmp_path):
     from planner.serve import STATIC, ServeConfig, voila_environment
 

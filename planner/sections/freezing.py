@@ -15,7 +15,7 @@ When :func:`planner.sections.vitrification.preservation_mode` says the protocol 
 What it computes
 ----------------
 From the moment ice starts, the sample's temperatures and ice fractions follow from the enthalpy method
-(:func:`planner.freezing.enthalpy_freezing`, 1-D: sphere, long cylinder, or slab) with the bath of the
+(:func:`planner.freezing.enthalpy_freezing_runs`, 1-D: sphere, long cylinder, or slab) with the bath of the
 schedule (:func:`planner.schedule.bath_history`) and the surface coefficient the ``thermal`` section
 used, over the freezing leg: from the start of ice to the next plunge (or the end of the schedule).
 Below the liquidus the ice fraction follows the solution's equilibrium freeze-concentration curve
@@ -32,12 +32,19 @@ unfrozen liquid concentrates as the temperature falls; both are given on the sam
   temperature (the longest hold after freezing), taken at Tg' where storage is colder and Tg' is known
   (below it the freeze-concentrated liquid is a glass and no more ice forms).
 - Plank's freezing time with the bath held at its temperature at the start of ice, as a cross-check.
+
+When an implicit step of the enthalpy method does not converge (the solver's ``not-converged`` flag), no
+number is taken from that path: ``freezing_time_min``, ``frozen_by_end_of_leg``, ``plateau_c`` and
+``centre_ice_fraction_at_leg_end`` are None, the flag (step time, residual left) is carried into the
+report with a note, and no freezing curve is drawn or recorded (the state is None). A bracket run that
+does not converge leaves its end of ``freezing_time_range_min`` None, with its flag.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -61,6 +68,8 @@ NAME = "freezing"
 CELLS = 24
 #: Largest implicit time step [s].
 MAX_TIME_STEP = 5.0
+#: Newton updates allowed per implicit step (None: the solver's own allowance for ``CELLS`` shells).
+NEWTON_UPDATES: int | None = None
 #: Freeze probability at which the medium is said to nucleate on its own (the median).
 LIKELY = 0.5
 
@@ -229,8 +238,13 @@ def _medium(comp, props, flags: list[Flag]) -> frz.FreezingMedium:
                               water_mass_fraction=comp.water_mass_fraction, density=float(props.density))
 
 
+@lru_cache(maxsize=64)
 def _coldest_valid(comp, liquidus: float, coldest: float) -> float:
-    """Coldest temperature [K] down to ``coldest`` where the freeze-concentration curve is defined."""
+    """Coldest temperature [K] down to ``coldest`` where the freeze-concentration curve is defined.
+
+    Kept for the compositions and ranges seen last (a frozen ``Composition`` is its own key): the app
+    reassesses on every input change, and most changes leave the solution and the coldest bath alone.
+    """
     from planner.solution import freeze_concentration
 
     grid = np.linspace(liquidus, coldest, 400)
@@ -326,34 +340,54 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     fc_end = freeze_concentration(comp, leg_end_bath)
     flags.extend(_curve_flags(fc_end))
     target = frz.FROZEN_SHARE * float(fc_end.ice_fraction_of_water)
-    path = frz.enthalpy_freezing(
-        geometry, half, medium, start_temperature, bath_at, lambda t: h_at(start_time + np.asarray(t)), duration,
+    # the nominal h and, when the thermal section bracketed it, both ends of its range (short to long): one
+    # stacked solve; the bracket runs stop once their centre is frozen
+    h_runs = [lambda t: h_at(start_time + np.asarray(t))]
+    stops: list[float | None] = [None]
+    bracket = getattr(getattr(context.get("thermal"), "state", None), "bracket", None) or {}
+    bracketed = target > 0 and set(bracket) >= {"low", "high"}
+    if bracketed:
+        for which in ("high", "low"):
+            h_which = _h_of(bracket[which])
+            h_runs.append(lambda t, h=h_which: h(start_time + np.asarray(t)))
+            stops.append(target)
+    path, *others = frz.enthalpy_freezing_runs(
+        geometry, half, medium, start_temperature, bath_at, h_runs, duration,
         n_cells=CELLS, record_interval=min(30.0, duration / 200.0), time_step=min(MAX_TIME_STEP, duration / 400.0),
+        stop_at_centre_ice_fraction=stops, max_iterations=NEWTON_UPDATES,
     )
     flags.extend(path.flags)
-    t_frozen = path.time_to_centre_ice_fraction(target) if target > 0 else float("nan")
-    report.freezing_time_min = _sig(t_frozen / 60.0, 3) if math.isfinite(t_frozen) else None
-    bracket = getattr(getattr(context.get("thermal"), "state", None), "bracket", None) or {}
-    if target > 0 and set(bracket) >= {"low", "high"}:
-        spread = []
-        for which in ("high", "low"):  # short to long
-            h_which = _h_of(bracket[which])
-            other = frz.enthalpy_freezing(
-                geometry, half, medium, start_temperature, bath_at, lambda t, h=h_which: h(start_time + np.asarray(t)), duration,
-                n_cells=CELLS, record_interval=min(30.0, duration / 200.0),
-                time_step=min(MAX_TIME_STEP, duration / 400.0), stop_at_centre_ice_fraction=target,
-            )
-            t_other = other.time_to_centre_ice_fraction(target)
-            spread.append(_sig(t_other / 60.0, 3) if math.isfinite(t_other) else None)
-        report.freezing_time_range_min = spread
-    report.frozen_by_end_of_leg = bool(math.isfinite(t_frozen))
     report.leg_end_c = _c(leg_end_bath, 2)
-    report.centre_ice_fraction_at_leg_end = _sig(float(path.centre_ice_fraction[-1]), 3)
-    if not math.isfinite(t_frozen):
-        flags.append(Flag("missing-data", f"the centre holds {path.centre_ice_fraction[-1]:.2f} of its water as "
-                          f"ice when the freezing leg ends at {leg_end_bath - CELSIUS_OFFSET:.1f} C, short of "
-                          f"{target:.2f} (90 % of equilibrium): the sample moves on partly frozen", None))
-    report.plateau_c = _c(path.plateau_temperature, 2)
+    converged = not _not_converged(path)
+    if bracketed:
+        spread = []
+        for which, other in zip(("high", "low"), others, strict=True):
+            t_other = other.time_to_centre_ice_fraction(target)
+            if _not_converged(other):
+                # that end's time is withheld, with the solver's own flag, said to be about that end
+                flags.extend(Flag(f.code, f"at the {which} end of the h range: {f.message}", f.source)
+                             for f in other.flags if f.code == frz.NOT_CONVERGED)
+                spread.append(None)
+            else:
+                spread.append(_sig(t_other / 60.0, 3) if math.isfinite(t_other) else None)
+        report.freezing_time_range_min = spread
+    if not converged:
+        # never a number from a path that is not a solution of the model: the freezing time, the plateau and
+        # the centre's ice are withheld (None), the solver's ``not-converged`` flag says why, and no curve is
+        # drawn or recorded
+        notes.append("the enthalpy-method solution did not converge (see the not-converged flag): the freezing "
+                     "time, the plateau and the centre's ice at the end of the leg are not given; a finer time "
+                     "step or more shells may solve it, and Plank's time below is only a rough cross-check")
+    else:
+        t_frozen = path.time_to_centre_ice_fraction(target) if target > 0 else float("nan")
+        report.freezing_time_min = _sig(t_frozen / 60.0, 3) if math.isfinite(t_frozen) else None
+        report.frozen_by_end_of_leg = bool(math.isfinite(t_frozen))
+        report.centre_ice_fraction_at_leg_end = _sig(float(path.centre_ice_fraction[-1]), 3)
+        if not math.isfinite(t_frozen):
+            flags.append(Flag("missing-data", f"the centre holds {path.centre_ice_fraction[-1]:.2f} of its water "
+                              f"as ice when the freezing leg ends at {leg_end_bath - CELSIUS_OFFSET:.1f} C, short "
+                              f"of {target:.2f} (90 % of equilibrium): the sample moves on partly frozen", None))
+        report.plateau_c = _c(path.plateau_temperature, 2)
 
     # Plank cross-check with the bath held at its temperature when ice starts
     bath0 = bath_at(0.0)
@@ -388,6 +422,13 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         report.unfrozen_fraction_at_storage = _sig(1.0 - float(fc.ice_fraction_of_water), 3)
         report.unfrozen_liquid_osmolality_at_storage_osmol_per_kg = _sig(float(fc.liquid_osmolality), 4)
 
+    report.parameters = {"cells": CELLS, "frozen_share_of_equilibrium_ice": frz.FROZEN_SHARE,
+                         "geometry": geometry, "half_dimension_m": half, "time_step_s": path.parameters["time_step_s"]}
+    report.flags = _dedupe(flags)
+    report.notes = notes
+    cautions = ["ln2-handling"] if protocol.schedule.uses_liquid_nitrogen else []
+    if not converged:
+        return SectionOutput(NAME, report, [], cautions, None)
     centre_fc = freeze_concentration(comp, np.asarray(path.centre_temperature))
     state = FreezingState(
         time=start_time + path.time,
@@ -402,13 +443,13 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
         ice_start_time=start_time,
         path=path,
     )
-    report.parameters = {"cells": CELLS, "frozen_share_of_equilibrium_ice": frz.FROZEN_SHARE,
-                         "geometry": geometry, "half_dimension_m": half, "time_step_s": path.parameters["time_step_s"]}
-    report.flags = _dedupe(flags)
-    report.notes = notes
     report.curve = _record_curve(state)
-    cautions = ["ln2-handling"] if protocol.schedule.uses_liquid_nitrogen else []
     return SectionOutput(NAME, report, [], cautions, state)
+
+
+def _not_converged(path: frz.FreezingPath) -> bool:
+    """Whether an implicit step of the path ended outside the solver's energy tolerance."""
+    return any(f.code == frz.NOT_CONVERGED for f in path.flags)
 
 
 CURVE_POINTS = 80  # points carried in the record; the app draws every point of the state

@@ -331,9 +331,16 @@ class PlannerModel(traitlets.HasTraits):
 
     def evaluate_cached(self, document: dict[str, Any], name: str, base_dir: Path | None) -> Evaluation:
         """Assess a document, reusing the result for a document seen before (changing a number and back)."""
-        import yaml
+        import json
 
-        key = (yaml.safe_dump(document, sort_keys=True), name, str(base_dir) + _file_stamp(document, base_dir))
+        # JSON keeps 1 and 1.0 apart as the loader does; a draft holds only JSON's kinds of value
+        try:
+            text = json.dumps(document, sort_keys=True, allow_nan=True, default=repr)
+        except TypeError:  # keys of mixed kinds (a number typed as a key): the loader will name it
+            import yaml
+
+            text = yaml.safe_dump(document, sort_keys=True)
+        key = (text, name, str(base_dir) + _file_stamp(document, base_dir))
         hit = self._cache.get(key)
         if hit is not None:
             self._cache.move_to_end(key)
