@@ -1,36 +1,36 @@
 """Benchmarks of the planner in the browser (voila + Debian's chromium). Prints figures; asserts nothing.
 
 1. cold start: voila process start → the plan page's first interactive step (the summary strip shows the
-   overall state), without a kernel pool; and page loads with a pre-started pool;
-2. round trip of one input change → updated summary strip, over 20 changes (new values each time, so
-   every change is a full assessment), and over 20 changes flipping between two values (answered from
-   the app's cache of assessed drafts);
+   overall state), the page asked for as soon as the server answers, with no pool and with the app's
+   default pool of one pre-started kernel; and page loads once a pool is ready;
+2. round trips of one input change → updated summary strip, measured in the page (Enter pressed → the
+   strip's last change, by the page's clock) and as seen by the test driver: 20 new values with each
+   result read (chart drawn) before the next change, 20 new values back to back, and 20 changes flipping
+   between two values (answered from the app's cache), on the open-vial and the rigid-chamber demos;
 3. memory of one kernel after the full demo (every step visited);
 4. ten viewers opening the app at once: time until all ten are interactive, and the machine's memory.
 
-Run: ``.venv/bin/python benchmarks/bench_app.py [--quick]``; only the ten viewers:
+Run: ``.venv/bin/python benchmarks/bench_app.py [--quick] [--no-viewers]``; only the ten viewers:
 ``--viewers-only [--viewers-pool 10]``.
 
-Figures measured on this machine (2 cores shared with other work; load average 10–60 during the
-ten-viewer runs, so read them as a busy machine's, not a quiet one's):
+Figures on this machine (2 cores, quiet: load average under 2 at each start), 2026-12-02:
 
-- ten viewers at once, no pool, every step built when the page opened (about 560 widgets a page):
-  0 of 10 interactive within 240 s, in three runs. Each page reached the kernel (websocket open, the
-  kernel idle after running the notebook) and then stayed blank: ten browsers had ~5600 widget models
-  to fetch and build at once on two cores, and the widget manager's one-shot request for all states
-  (4 s limit) gave way to fetching them one by one;
-- the same with the first step only built when the page opens (141 widgets; other steps built when
-  shown): 10 of 10 interactive, first after 136.8 s, median 146.2 s, all after 150.4 s from the launch
-  of the ten browsers. Of that, ~10–24 s is ten browser processes starting on the same two cores (ten
-  laptops would not share this), the notebooks ran until ~95 s, and each page was usable 4–6 s after
-  its websocket opened. Kernels 221–225 MB each; memory available 23344 MB before, 19175 MB at the
-  lowest with the ten browsers.
-- ten viewers with ``--pool 10`` as it was first served (voila kept a pool of ten for the compare page
-  too, and replaced each used kernel at once): 30 kernels at the peak; pages arrived pre-rendered in
-  15–20 s but the widgets had not connected by 130 s and none was interactive within 150 s (load average
-  ~48, 11.5 GB available). Hence the pool now serves the plan page only and refills a minute after a
-  kernel is taken; the figure with those settings is still to be measured (run ``--viewers-only
-  --viewers-pool 10``).
+- cold start, medians of 3: no pool 6.3 s to the first interactive step (assessed and chart drawn by
+  6.4 s); default pool of one, page asked for at once 6.2 s (the pool kernel is still running the
+  notebook); a page once the pool is ready: 1.9–2.2 s. The notebook's own run is about 2.3 s of it:
+  imports for the assessment (~0.95 s, mostly scipy), the first assessment (~0.2 s), the first chart
+  (altair import ~0.45 s, vl-convert's engine start 0.6–0.9 s, which holds the interpreter lock, so a
+  thread does not help); the kernel's start and the page's scripts take the rest.
+- round trips, medians over 20, in the page / seen by the driver: open vial 120 / 181 ms (each result
+  read), 164 / 233 ms (back to back), 117 / 166 ms (cached); rigid chamber 173 / 239 ms, 301 / 349 ms,
+  97 / 171 ms. Back to back, the chart of one change is still being drawn when the next arrives.
+- kernel memory after the full demo: 292 MB (open vial), 366 MB (rigid chamber).
+- ten viewers at once, each in its own chromium on the same 2 cores: ``--pool 10``: kernels ready 28 s
+  after the server started, all ten interactive 40.2 s and 39.2 s after the ten browsers were launched
+  (first 33.5 / 35.0 s: ten browser processes starting on two cores); 224 MB per kernel; at least
+  18.7 GB of memory stayed available. No pool: all ten interactive after 106 s.
+- earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
+  one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
 
 from __future__ import annotations
