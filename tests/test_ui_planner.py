@@ -116,6 +116,7 @@ def test_blank_keeps_the_keys_and_the_schema_only():
     ("container.cavity_compliance_per_gpa", "Cavity compliance (1/GPa)"),
     ("environment.h_w_per_m2_k", "Heat-transfer coefficient (W/(m² K))"),
     ("a_new_section.some_pressure_mpa", "Some pressure (MPa)"),  # an unknown key still gets a unit
+    ("time_to_within_0p5k_min", "Time to within 0.5 K of the bath (min)"),  # the report key's 0p5k in words
 ])
 def test_labels_carry_the_unit_of_the_key(path, label):
     assert label_for(path) == label

@@ -121,7 +121,12 @@ FIELD_TEXT: dict[str, FieldText] = {
 
 
 # Short stems that read badly as words.
-STEM_WORDS: dict[str, str] = {"h": "Heat-transfer coefficient", "lp": "Hydraulic conductivity Lp"}
+STEM_WORDS: dict[str, str] = {
+    "h": "Heat-transfer coefficient", "lp": "Hydraulic conductivity Lp",
+    # report keys spell 0.5 K as 0p5k (a key holds no dot)
+    "time_to_within_0p5k": "Time to within 0.5 K of the bath",
+    "time_to_within_0p5k_range": "Time to within 0.5 K of the bath, over the h range",
+}
 
 
 def pattern_of(path: str) -> str:
