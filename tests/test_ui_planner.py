@@ -453,6 +453,26 @@ def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
     assert not any(v.chart_worker.inline for v in app.step_views.values())
 
 
+def test_a_chart_is_not_drawn_while_a_newer_assessment_runs():
+    """Drawing the chart of a result already replaced would slow the newer assessment down; its own chart
+    follows when it arrives."""
+    from planner.ui.planner_app import PlannerApp
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml", inline=True)
+    view = app.step_views["sample"]
+    before = view.chart.value
+    assert "<svg" in before
+    app.model.working = True  # as while the worker assesses a newer draft
+    view.chart_revision = -1
+    view.refresh_chart()
+    assert "<svg" not in view.chart.value.split("</div>", 1)[0]  # the "updating" note, not a new chart
+    assert view.chart_revision == -1  # to be drawn again
+    app.model.working = False
+    view.refresh_chart()
+    assert view.chart.value.startswith('<div class="cm-chart"><svg')  # drawn anew (its SVG ids differ)
+    assert view.chart_revision == app.model.result_revision
+
+
 def test_a_page_starts_with_the_first_step_only_and_builds_the_others_when_shown():
     """Every widget is a model the browser must build before the page is usable: the first page holds the
     first step's widgets only (ten viewers at once each get a light page); a step is built when first

@@ -29,6 +29,11 @@ from planner.ui.widgets import add_classes, button, download_link, dropdown, err
 from planner.ui.work import Worker
 
 NONE_WORD = "(not given)"
+
+
+class Superseded(Exception):
+    """A chart not drawn because a newer result is on its way."""
+
 UPDATING = '<div class="cm-working-note cm-chart-updating">Updating the chart for the latest result…</div>'
 
 
@@ -291,6 +296,10 @@ class StepView:
             self.chart_revision = -1
 
         def draw() -> str:
+            if model.working:
+                # a newer assessment is running: its own chart follows, and drawing this one now would only
+                # slow it down (both need the interpreter)
+                raise Superseded
             from planner.ui.stepcharts import (
                 chart_for_step,  # altair loads on the chart thread, not the page's
             )
