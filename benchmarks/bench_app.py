@@ -31,6 +31,8 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
   after the server started, all ten interactive 40.2 s and 39.2 s after the ten browsers were launched
   (first 33.5 / 35.0 s: ten browser processes starting on two cores); 224 MB per kernel; at least
   18.7 GB of memory stayed available. No pool: all ten interactive after 106 s.
+- 2026-12-02, a later quiet run (load average under 1): cold start, medians of 7, pool 0 4.3–4.6 s,
+  pool 1 (page asked for at once) 4.1–4.8 s.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
@@ -202,6 +204,14 @@ def round_trips(page, protocol_label: str, changes: int) -> None:
               f"{statistics.median(outside):.0f} ms (min {min(outside):.0f}, max {max(outside):.0f}) over {changes}")
 
 
+# what a page that never became usable holds (printed with its console)
+PAGE_STATE = """() => JSON.stringify({ready: document.readyState, app: !!window.jupyterapp,
+  loading: !!document.getElementById('loading'), cells: (document.getElementById('rendered_cells') || {}).style?.display,
+  outputs: document.querySelectorAll('.jp-OutputArea-output').length, widgets: document.querySelectorAll('.jupyter-widgets').length,
+  views: document.querySelectorAll('script[type="application/vnd.voila.cell-output+json"]').length,
+  text: document.body.innerText.slice(0, 200)})"""
+
+
 def one_viewer(page_url: str, started: float) -> None:
     """One viewer in its own browser (a separate process, as on its own computer): prints seconds from
     ``started`` (time.time() of the launch) to interactive and to the first assessment."""
@@ -221,6 +231,7 @@ def one_viewer(page_url: str, started: float) -> None:
         except Exception:
             shot = Path(tempfile.gettempdir()) / f"coldmargin-viewer-{os.getpid()}.png"
             page.screenshot(path=str(shot))
+            console.append("page: " + page.evaluate(PAGE_STATE))
             print(f"not interactive; screenshot {shot}; console:", *console[-30:], sep="\n  ", file=sys.stderr)
             raise
         ready = time.time() - started
@@ -308,12 +319,13 @@ def main() -> None:
     parser.add_argument("--viewers-only", action="store_true", help="only the ten-viewers figure")
     parser.add_argument("--no-viewers", action="store_true", help="skip the ten-viewers figures")
     parser.add_argument("--viewers-pool", type=int, default=0, help="pre-started kernels for --viewers-only")
+    parser.add_argument("--cold-runs", type=int, default=0, help="cold starts for each pool size (default 3)")
     parser.add_argument("--one-viewer", nargs=2, metavar=("URL", "STARTED"), help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.one_viewer:
         one_viewer(args.one_viewer[0], float(args.one_viewer[1]))
         return
-    cold_runs = 1 if args.quick else 3
+    cold_runs = args.cold_runs or (1 if args.quick else 3)
     changes = 8 if args.quick else 20
     viewers = int(os.environ.get("BENCH_VIEWERS", "10"))
     with sync_playwright() as pw:
