@@ -31,7 +31,7 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
   after the server started, all ten interactive 40.2 s and 39.2 s after the ten browsers were launched
   (first 33.5 / 35.0 s: ten browser processes starting on two cores); 224 MB per kernel; at least
   18.7 GB of memory stayed available. No pool: all ten interactive after 106 s.
-- 2026-12-02, a later quiet run (load average under 1): cold start, medians of 7, pool 0 4.3–4.6 s,
+- 2026-12-02, later quiet runs (load average under 1): cold start, medians of 3 and of 7, pool 0 4.3–4.6 s,
   pool 1 (page asked for at once) 4.1–4.8 s.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
