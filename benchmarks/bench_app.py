@@ -67,14 +67,17 @@ RIGID = ROOT / "protocols" / "rigid-chamber-hold.yaml"  # the demo `make app` op
 
 
 def start(pool: int = 0, protocol: Path = OPEN_VIAL):
-    from planner.serve import ServeConfig, free_port, voila_command, voila_environment
+    from planner.serve import ServeConfig, compile_package, free_port, voila_command, voila_environment
 
     folder = Path(tempfile.mkdtemp(prefix="coldmargin-bench-"))
     cfg = ServeConfig(token="bench", pool=pool, protocol=protocol, timeout_s=300).check()
     port = free_port(0)
     t0 = time.monotonic()
+    compile_package()  # as `coldmargin app` does before it starts voila (~20 ms when the bytecode is current)
+    log = (folder / "voila.log").open("wb")  # read by stop(): voila's warnings say why a page stayed blank
     proc = subprocess.Popen(voila_command(cfg, port), env=voila_environment(cfg, folder / "jupyter"),
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=folder, start_new_session=True)
+                            stdout=log, stderr=subprocess.STDOUT, cwd=folder, start_new_session=True)
+    log.close()
     RUNNING.append((proc, folder))
     while True:
         try:
@@ -87,17 +90,33 @@ def start(pool: int = 0, protocol: Path = OPEN_VIAL):
     return proc, port, folder, t0, time.monotonic() - t0
 
 
+def log_warnings(folder: Path) -> None:
+    """Print voila's warnings and errors of one server (each kind once, with its count)."""
+    path = Path(folder) / "voila.log"
+    if not path.exists():
+        return
+    seen: dict[str, int] = {}
+    for line in path.read_text(errors="replace").splitlines():
+        # nbclient's executor logs through a logger of its own, without voila's "[W ..." prefix
+        if line.startswith(("[W ", "[E ", "[C ")) or "Timeout waiting for IOPub" in line:
+            kind = line.split("] ", 1)[-1][:160]
+            seen[kind] = seen.get(kind, 0) + 1
+    for kind, n in seen.items():
+        print(f"  voila log, {n}x: {kind}")
+
+
 def stop(proc, folder) -> None:
     if (proc, folder) in RUNNING:
         RUNNING.remove((proc, folder))
-    if proc.poll() is not None:
-        shutil.rmtree(folder, ignore_errors=True)
-        return
-    os.killpg(proc.pid, signal.SIGTERM)
-    try:
-        proc.wait(timeout=30)
-    except subprocess.TimeoutExpired:
-        os.killpg(proc.pid, signal.SIGKILL)
+    if proc.poll() is None:
+        os.killpg(proc.pid, signal.SIGTERM)
+        try:
+            proc.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            os.killpg(proc.pid, signal.SIGKILL)
+    if os.environ.get("BENCH_VOILA_LOG") == "1":
+        log_warnings(folder)
+        shutil.copy(Path(folder) / "voila.log", Path(tempfile.gettempdir()) / f"coldmargin-voila-{proc.pid}.log")
     shutil.rmtree(folder, ignore_errors=True)
 
 
@@ -320,6 +339,7 @@ def main() -> None:
     parser.add_argument("--no-viewers", action="store_true", help="skip the ten-viewers figures")
     parser.add_argument("--viewers-pool", type=int, default=0, help="pre-started kernels for --viewers-only")
     parser.add_argument("--cold-runs", type=int, default=0, help="cold starts for each pool size (default 3)")
+    parser.add_argument("--cold-pools", default="0,1", help="pool sizes of the cold starts (default 0,1)")
     parser.add_argument("--one-viewer", nargs=2, metavar=("URL", "STARTED"), help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.one_viewer:
@@ -333,7 +353,7 @@ def main() -> None:
 
         # 1. cold start: the server started and the page opened at once, with no pool and with the app's
         # default pool of one pre-started kernel (which is still running the notebook when the page asks)
-        for pool in (() if args.viewers_only else (0, 1)):
+        for pool in (() if args.viewers_only else [int(n) for n in args.cold_pools.split(",")]):
             cold, strip, chart = [], [], []
             for _ in range(cold_runs):
                 proc, port, folder, t0, up = start(pool=pool, protocol=RIGID)

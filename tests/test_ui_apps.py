@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 import socket
 from pathlib import Path
 
@@ -263,6 +264,42 @@ def test_voila_command_binds_loopback_with_token_and_no_sources():
     # the pool serves the planner page only; the other notebooks start kernels on demand
     denied = [c.split("=", 1)[1] for c in cmd if c.startswith("--VoilaKernelManager.preheat_denylist=")]
     assert sorted(denied) == ["archive.ipynb", "calibrate.ipynb", "compare.ipynb"]
+
+
+def test_the_app_writes_the_bytecode_kernels_load(tmp_path, monkeypatch):
+    """Kernels load the planner from bytecode, written at app start even where PYTHONDONTWRITEBYTECODE is set."""
+    import importlib.util
+    import time
+
+    from planner.serve import compile_package
+
+    monkeypatch.setenv("PYTHONDONTWRITEBYTECODE", "1")
+    pkg = tmp_path / "pkg"
+    (pkg / "sub").mkdir(parents=True)
+    (pkg / "a.py").write_text("X = 1\n")
+    (pkg / "sub" / "b.py").write_text("Y = 2\n")
+    assert compile_package(pkg)
+    for src in (pkg / "a.py", pkg / "sub" / "b.py"):
+        assert Path(importlib.util.cache_from_source(str(src))).is_file()
+    cached = Path(importlib.util.cache_from_source(str(pkg / "a.py")))
+    first = cached.read_bytes()
+    (pkg / "a.py").write_text("X = 30\n")  # a changed source is compiled again
+    later = time.time() + 5
+    os.utime(pkg / "a.py", (later, later))
+    assert compile_package(pkg)
+    assert cached.read_bytes() != first
+
+
+def test_voila_waits_for_a_cells_output_as_long_as_for_the_notebook():
+    """nbclient's own 4 s wait for a cell's output after its reply left pages blank with ten viewers at once
+    (the output holding the app's widgets came later, and the page was sent without it; voila's log said
+    "Timeout waiting for IOPub output" ten times). The wait is the notebook's own time limit."""
+    from planner.serve import ServeConfig, voila_command
+
+    for limit in (10, 180, 3600):
+        cmd = voila_command(ServeConfig(token="abc", timeout_s=limit).check(), 9999)
+        assert f"--VoilaExecutor.iopub_timeout={limit}" in cmd
+        assert f"--VoilaExecutor.timeout={limit}" in cmd
 
 
 def test_the_app_command_keeps_one_kernel_ready_unless_told_otherwise():

@@ -447,10 +447,55 @@ def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
     from planner.ui.planner_app import PlannerApp
 
     monkeypatch.setenv("COLDMARGIN_PROTOCOL", str(ROOT / "protocols" / f"{DEMO}.yaml"))
+    monkeypatch.setenv("VOILA_PREHEAT", "True")  # a pre-started kernel: no page waits for this notebook
     app = PlannerApp()
     assert app.model.current and "<svg" in app.step_views["sample"].chart.value
     assert not app.model.worker.inline
     assert not any(v.chart_worker.inline for v in app.step_views.values())
+    assert not app.charts_held and not hasattr(app, "page_shown")
+
+
+def _held_app(monkeypatch):
+    from planner.ui.planner_app import PlannerApp
+
+    monkeypatch.setenv("COLDMARGIN_PROTOCOL", str(ROOT / "protocols" / f"{DEMO}.yaml"))
+    monkeypatch.setenv("VOILA_PREHEAT", "False")  # as voila sets it in a kernel started for one page
+    return PlannerApp()
+
+
+def test_a_page_kernel_draws_the_first_chart_once_the_page_says_it_is_up(monkeypatch):
+    """In a kernel started for a page's request, the first chart (about a second of work) waits until the
+    page has shown the app; the strip and the inputs do not wait."""
+    from planner.ui.widgets import PageShown
+
+    app = _held_app(monkeypatch)
+    view = app.step_views["sample"]
+    assert app.model.current and "cm-verdict" in app.strip.value  # assessed in line
+    assert app.charts_held and "<svg" not in view.chart.value
+    assert isinstance(app.page_shown, PageShown) and app.page_shown in app.widget.children
+    app.page_shown.shown = True  # what the widget's script does when the page renders it
+    assert not app.charts_held
+    view.chart_worker.wait(timeout=60)
+    assert "<svg" in view.chart.value
+
+
+def test_a_held_chart_is_drawn_on_the_first_edit_even_without_the_page_signal(monkeypatch):
+    """If the page's signal never arrives (its script failed to load, say), a person's first edit or step
+    change still brings the charts back."""
+    app = _held_app(monkeypatch)
+    app.model.step = "solution"
+    assert not app.charts_held
+    view = app.step_views["solution"]
+    view.chart_worker.wait(timeout=60)
+    assert "<svg" in view.chart.value
+
+    app = _held_app(monkeypatch)
+    volume = next(fv for fv in app.step_views["sample"].fields if fv.path.endswith("volume_ml"))
+    app.edit(lambda: app.model.set_value(volume.path, 1.5))
+    assert not app.charts_held
+    app.model.worker.wait(timeout=60)
+    app.step_views["sample"].chart_worker.wait(timeout=60)
+    assert "<svg" in app.step_views["sample"].chart.value
 
 
 def test_a_chart_is_not_drawn_while_a_newer_assessment_runs():

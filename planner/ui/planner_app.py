@@ -25,7 +25,16 @@ from planner.ui.summary import (
     section_html,
     strip_html,
 )
-from planner.ui.widgets import add_classes, button, download_link, dropdown, error_html, html_box, text_box
+from planner.ui.widgets import (
+    PageShown,
+    add_classes,
+    button,
+    download_link,
+    dropdown,
+    error_html,
+    html_box,
+    text_box,
+)
 from planner.ui.work import Worker
 
 NONE_WORD = "(not given)"
@@ -282,6 +291,8 @@ class StepView:
         model = self.app.model
         if self.spec.chart is None or self.chart_revision == model.result_revision:
             return
+        if self.app.charts_held:
+            return  # drawn once the page is up (PlannerApp.release_charts)
         from planner.ui.stepcharts_data import snapshot
 
         revision = model.result_revision
@@ -356,11 +367,14 @@ class PlannerApp:
     def __init__(self, protocol: str | os.PathLike | None = None, model: PlannerModel | None = None,
                  inline: bool = False):
         # While the notebook runs no page is connected yet (always so in a pre-started kernel, and often
-        # with many viewers at once): widget updates sent from a worker thread then can leave the page
-        # blank. So the app is built, assessed and drawn in line; the worker threads take over afterwards,
-        # when every update answers a person's input on a connected page.
+        # with many viewers at once). The app is built and assessed in line; the worker threads take over
+        # afterwards, when every update answers a person's input on a connected page.
+        # In a kernel started for one page's request, the first chart (altair's import and the SVG engine's
+        # start, ~1 s) waits until that page says it has shown the app, so the page opens that much sooner;
+        # a pre-started kernel has time to spare and draws it in line.
         threaded_later = model is None and not inline
         self.model = model or PlannerModel(inline=True if threaded_later else inline)
+        self.charts_held = threaded_later and os.environ.get("VOILA_PREHEAT") == "False"
         self.syncing = False
         self._confirm: str | None = None
         self._lock = threading.RLock()
@@ -401,6 +415,19 @@ class PlannerApp:
             self.model.worker = Worker(inline=False)
             for view in self.step_views.values():
                 view.chart_worker = Worker(inline=False)
+        if self.charts_held:
+            self.page_shown = PageShown()
+            self.page_shown.observe(lambda change: self.release_charts(), names="shown")
+            self.widget.children = (*self.widget.children, self.page_shown)
+
+    def release_charts(self) -> None:
+        """Draw charts from now on (the page is up); the current step's chart is drawn at once."""
+        if not self.charts_held:
+            return
+        self.charts_held = False
+        current = self.step_views.get(self.model.step)
+        if current is not None:
+            current.refresh_chart()
 
     @property
     def review(self):
@@ -475,6 +502,7 @@ class PlannerApp:
 
     def edit(self, action) -> None:
         """Run an edit; a refused edit (e.g. too few rows) is said in the message line, nothing changes."""
+        self.release_charts()  # a person's edit means the page is up, even if its signal never came
         try:
             action()
         except PlannerError as exc:
@@ -529,6 +557,7 @@ class PlannerApp:
             self.widget.remove_class("cm-large")
 
     def _on_step(self, change) -> None:
+        self.release_charts()
         self._show_step()
 
     def _on_working(self, change) -> None:

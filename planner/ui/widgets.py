@@ -5,7 +5,9 @@ from __future__ import annotations
 import base64
 import html
 
+import anywidget
 import ipywidgets as w
+import traitlets
 
 LABEL_WIDTH = "17em"
 
@@ -56,3 +58,16 @@ def download_link(filename: str, data: bytes, text: str, mime: str) -> str:
 
 def error_html(message: str | None) -> str:
     return f'<div class="cm-field-error">{html.escape(message)}</div>' if message else ""
+
+
+
+class PageShown(anywidget.AnyWidget):
+    """A hidden widget whose ``shown`` turns true once a page has rendered it: the page is up.
+
+    The app holds back work that would only delay the page's first showing (see PlannerApp).
+    """
+
+    _esm = ("function render({ model, el }) { el.style.display = 'none';"
+            " if (!model.get('shown')) { model.set('shown', true); model.save_changes(); } }"
+            " export default { render };")
+    shown = traitlets.Bool(False).tag(sync=True)

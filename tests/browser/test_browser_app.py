@@ -26,6 +26,9 @@ def plan(browser, server):
     p.goto(server.url("plan"))
     p.locator(".cm-app").wait_for(timeout=180_000)
     p.locator(".cm-summary .cm-verdict").wait_for(timeout=180_000)
+    # the fixture's server has no pre-started kernels: the first chart waits for the page's own signal that
+    # it has shown the app, and must then appear with no click
+    p.locator(".cm-body .cm-chart svg").first.wait_for(timeout=60_000)
     yield p
     context.close()
 
