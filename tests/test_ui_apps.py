@@ -2,8 +2,12 @@
 
 from __future__ import annotations
 
+import base64
+import hashlib
+import json
 import math
 import os
+import re
 import socket
 from pathlib import Path
 
@@ -33,6 +37,15 @@ def stand_in_evaluate():
         return Evaluation(protocol, None, report)
 
     return evaluate
+
+
+def downloads(html_text):
+    """The page's download links: file name -> (link text, mime type, the bytes it downloads)."""
+    found = {}
+    for name, mime, b64, text in re.findall(
+            r'<a class="cm-download" download="([^"]+)" href="data:([^;]+);base64,([^"]*)">([^<]*)</a>', html_text):
+        found[name] = (text, mime, base64.b64decode(b64))
+    return found
 
 # --- the homogeneous-nucleation limit drawn on the schedule chart -------------------------------------------
 
@@ -87,6 +100,70 @@ def test_chart_builders_draw_offline_and_skip_missing_points():
     for chart in charts:
         svg = chart_svg(chart)
         assert svg.startswith("<svg") and "http" not in svg.replace("http://www.w3.org", "")
+
+
+def _svg_texts(html_text):
+    return set(re.findall(r"<text[^>]*>([^<]*)</text>", html_text))
+
+
+def _line_marks(html_text):
+    """The aria labels of the line marks (each names its first point, with its series)."""
+    return re.findall(r'<path aria-label="([^"]*)" role="graphics-symbol" aria-roledescription="line mark"', html_text)
+
+
+def test_chamber_chart_of_the_rigid_demos_real_assessment():
+    """The step chart on the real assessment of the rigid demo: pressure and ice fraction against
+    temperature, the planned hold and the worst case marked."""
+    from planner.ui.planner_model import PlannerModel
+    from planner.ui.stepcharts import chart_for_step
+
+    m = PlannerModel(inline=True)  # the real assessment
+    m.load_demo("rigid-chamber-hold")
+    assert m.current, m.message
+    chart = chart_for_step("chamber", m)
+    assert chart.startswith('<div class="cm-chart"><svg')  # a chart, not a note saying why there is none
+    texts = _svg_texts(chart)
+    assert {"Chamber pressure if ice forms", "Ice fraction at equilibrium", "pressure (MPa)", "ice mass fraction",
+            "temperature (°C)"} <= texts
+    assert "planned hold -4.0 °C" in texts  # the demo holds at -4 C (protocols/rigid-chamber-hold.yaml)
+    # the worst case is the ice Ih-III-liquid triple point, 251.165 K = -21.985 C [ref:iapws-r14-08]
+    assert "worst case -22.0 °C" in texts
+    lines = _line_marks(chart)
+    assert any("pressure (MPa):" in a for a in lines) and any("ice mass fraction:" in a for a in lines)
+
+
+def test_cells_chart_of_a_demo_with_a_cells_block_real_assessment():
+    """The step chart on the real assessment of the cells demo: cell volume during loading and unloading
+    with the cell's tolerance band."""
+    from planner.ui.planner_model import PlannerModel
+    from planner.ui.stepcharts import chart_for_step
+
+    m = PlannerModel(inline=True)
+    m.load_demo("slow-freeze-cells-loading")
+    assert m.current, m.message
+    chart = chart_for_step("cells", m)
+    assert chart.startswith('<div class="cm-chart"><svg')
+    texts = _svg_texts(chart)
+    assert {"Cell volume during loading and unloading", "cell volume / isotonic volume", "time (min)",
+            "loading", "unloading"} <= texts
+    # the human-sperm preset's tolerance, 0.75 to 1.1 of isotonic volume (planner/data/cells.yaml, from
+    # Gao et al. 1995 as quoted in a secondary source [ref:gao-1995])
+    assert {"smallest tolerated 0.75", "largest tolerated 1.10"} <= texts
+    assert 'fill="#1f6f43"' in chart  # the band between them
+    lines = _line_marks(chart)
+    assert any(a.startswith("time (min): 0;") and a.endswith("phase: loading") for a in lines)
+    # four loading steps of 5 min, then the unloading line continues the time axis
+    assert any(a.startswith("time (min): 20;") and a.endswith("phase: unloading") for a in lines)
+
+
+def test_open_vial_has_no_chamber_or_cells_chart_and_says_why():
+    from planner.ui.planner_model import PlannerModel
+    from planner.ui.stepcharts import chart_for_step
+
+    m = PlannerModel(inline=True)
+    m.load_demo(DEMO)
+    assert "No chamber chart: the container is open" in chart_for_step("chamber", m)
+    assert "No cell chart: the protocol has no cells block." in chart_for_step("cells", m)
 
 
 def test_freeze_map_marks_each_scenario_with_the_nucleation_model():
@@ -213,6 +290,74 @@ def test_archive_lists_opens_and_verifies_a_signed_record(signed):
     assert "NOT verified" in app.result.value  # a head kept elsewhere that the archive does not hold
 
 
+def test_archive_app_offers_the_record_and_both_renderings_for_download(signed):
+    from planner.ui.archive_app import ArchiveApp
+
+    _, _, archive, done = signed
+    app = ArchiveApp(archive)
+    app.verify_button.click()
+    links = downloads(app.downloads.value)
+    stem = f"record-{done.record_id}-v{done.version}"
+    assert sorted(links) == [f"{stem}.html", f"{stem}.json", f"{stem}.pdf"]
+    text, mime, data = links[f"{stem}.json"]
+    assert mime == "application/json" and data == done.data  # the exact stored bytes
+    assert hashlib.sha256(data).hexdigest() == done.record_hash
+    text, mime, page = links[f"{stem}.html"]
+    assert (text, mime) == ("rendering (HTML)", "text/html")
+    page = page.decode("utf-8")
+    assert page.lstrip().lower().startswith(("<!doctype html", "<html")) and done.record_hash in page
+    assert f"{json.loads(done.data)['body']['record_id']}" in page
+    text, mime, pdf = links[f"{stem}.pdf"]
+    assert (text, mime) == ("rendering (PDF)", "application/pdf")
+    assert pdf.startswith(b"%PDF-") and pdf.rstrip().endswith(b"%%EOF")
+
+
+def test_sign_step_shows_the_record_and_offers_three_downloads(tmp_path):
+    from planner.archive import Archive
+    from planner.keys import generate_key
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    key = tmp_path / "k"
+    generate_key("Test Signer", "tester", key, PASS, kdf_rounds=1)
+    archive = tmp_path / "signed.sqlite"
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    app.model.go("sign")
+    sign = app.sign
+    sign.name.value = "Test Signer"
+    sign.key_file.value = str(key)
+    sign.passphrase.value = PASS
+    sign.archive.value = str(archive)
+    sign.register.value = True
+    sign.sign_button.click()
+    assert "cm-message" in sign.status.value and "cautions" in sign.status.value  # the box is not ticked yet
+    assert sign.result.value == "" and not archive.exists()
+    sign.seen.value = True
+    sign.passphrase.value = PASS
+    sign.sign_button.click()
+    assert sign.status.value == "" and sign.passphrase.value == ""  # the passphrase is not kept
+    with Archive.open(archive) as a:
+        entries = [e for e in a.entries() if e.kind == "record"]
+    assert len(entries) == 1
+    data = entries[0].content
+    body = json.loads(data)["body"]
+    shown = sign.result.value
+    assert "Signed and archived." in shown
+    assert f"<code class='cm-record-id'>{body['record_id']}</code> version 1" in shown
+    assert f"<code class='cm-record-hash'>sha256:{hashlib.sha256(data).hexdigest()}</code>" in shown
+    links = downloads(shown)
+    stem = f"record-{body['record_id']}-v1"
+    assert {name: (t, m) for name, (t, m, _) in links.items()} == {
+        f"{stem}.json": ("record (JSON)", "application/json"),
+        f"{stem}.html": ("record (HTML)", "text/html"),
+        f"{stem}.pdf": ("record (PDF)", "application/pdf"),
+    }
+    assert links[f"{stem}.json"][2] == data  # the bytes that went into the archive
+    assert body["record_id"] in links[f"{stem}.html"][2].decode("utf-8")
+    assert links[f"{stem}.pdf"][2].startswith(b"%PDF-")
+
+
 def test_archive_that_does_not_exist_is_an_error_not_created(tmp_path):
     from planner.ui.archive_model import ArchiveModel
 
@@ -245,6 +390,82 @@ def test_calibrate_fits_a_demo_assay_and_saves_without_overwriting(tmp_path):
         m.save(tmp_path, "lab cal")
     with pytest.raises(InputError, match="UTF-8"):
         m.load_text("x.csv", b"\xff\xfe")
+
+
+# an invented plan for the calibration test: 2 mL of saline sealed under oil, held at -6 C (inside the
+# demo assay's -4.5 to -8.5 C holds) for 24 h
+CALIBRATED_PLAN = """\
+schema: coldmargin/protocol-1
+title: Invented demo - sealed 2 mL hold at -6 C
+sample: {volume_ml: 2.0, geometry: cylinder, diameter_mm: 10.0}
+container: {kind: open, interface: sealed}
+solution: {carrier: isotonic-saline}
+schedule:
+  start_c: 4.0
+  steps:
+    - {ramp_to_c: -6.0, rate_c_per_min: 0.5}
+    - {hold_h: 24}
+    - {ramp_to_c: 4.0, rate_c_per_min: 1.0}
+"""
+
+
+def test_calibrate_app_fits_shows_the_interval_and_saves_without_overwriting(tmp_path):
+    """The calibrate page headless: open the demo assay, fit, see the result with its uncertainty and the
+    observed-against-predicted chart, save, and a second save does not overwrite the first."""
+    from planner.assessment import assess
+    from planner.protocol import load_protocol
+    from planner.ui.calibrate_app import CalibrateApp
+
+    app = CalibrateApp(inline=True)
+    app.demo.value = "demo-saline-holds"
+    app.open_demo.click()
+    assert app.message.value == ""
+    # protocols/assays/README.md: 36 holds of 2 mL (invented demo data)
+    assert "demo-saline-holds.csv: 36 samples" in app.assay.value and "liquidus -0.55 °C" in app.assay.value
+    app.fit_button.click()
+    result = app.result.value
+    assert "cm-message" not in result
+    assert "<td>Result</td><td>fitted rate</td>" in result
+    rate = re.search(r"<td>Rate at the reference \(1/\(mL s\)\)</td><td>(\S+) \(90 % interval (\S+) to (\S+)\)</td>",
+                     result)
+    assert rate, result
+    centre, low, high = (float(x) for x in rate.groups())
+    assert 0 < low < centre < high
+    assert f"<td>Samples (frozen)</td><td>36 ({app.model.calibration.frozen})</td>" in result
+    charts = re.findall(r'<div class="cm-chart">(<svg.*?</svg>)</div>', result, flags=re.S)
+    assert len(charts) == 2  # the rate with its band, and observed against predicted
+    observed = _svg_texts(charts[1])
+    assert {"Observed against predicted", "predicted fraction frozen", "observed fraction frozen"} <= observed
+    assert not app.fit_button.disabled and app.progress.layout.display == "none"
+
+    app.folder.value = str(tmp_path)
+    app.name.value = "lab cal"
+    app.save_button.click()
+    saved = tmp_path / "lab-cal.yaml"
+    assert f"<code class='cm-cal-path'>{saved}</code>" in app.saved.value
+    first = saved.read_bytes()
+    snippet = re.search(r"<code>(nucleation: \{calibration: [^<]+\})</code>", app.saved.value).group(1)
+    assert snippet == "nucleation: {calibration: lab-cal.yaml}"
+    app.save_button.click()
+    assert "cm-message" in app.saved.value and "overwritten" in app.saved.value
+    assert saved.read_bytes() == first  # the first calibration is kept as it was
+
+    # a plan whose nucleation key points at the saved file is assessed with it ...
+    plain = tmp_path / "plain.yaml"
+    plain.write_text(CALIBRATED_PLAN)
+    calibrated = tmp_path / "calibrated.yaml"
+    calibrated.write_text(CALIBRATED_PLAN + snippet + "\n")
+    with_cal = assess(load_protocol(calibrated)).sections["nucleation"].report
+    without = assess(load_protocol(plain)).sections["nucleation"].report
+    assert with_cal.nucleation_model == "calibration:demo-saline-holds.csv" and with_cal.nucleation_kind == "fit"
+    assert with_cal.parameters["nucleation_preset_or_file"] == "calibration:demo-saline-holds.csv"
+    assert with_cal.source == "vali-1971"  # the fitted rate's form (Vali 1971), not the default preset's source
+    assert not any(f.code == "default-used" and "no nucleation key" in f.message for f in with_cal.flags)
+    assert not any(f.code == "extrapolated" for f in with_cal.flags)  # -6 C lies inside the assay
+    # ... and without it the documented default for a sealed interface is used, and says so
+    assert without.nucleation_model == "sealed-interface" and without.source != with_cal.source
+    assert any(f.code == "default-used" and "no nucleation key" in f.message for f in without.flags)
+    assert with_cal.freeze_probability != without.freeze_probability
 
 
 # --- serving ------------------------------------------------------------------------------------------------------

@@ -128,6 +128,51 @@ def test_unit_suffixes_and_css_names():
     assert css_name("schedule.steps[1].hold_h") == "cm-f-schedule-steps-1-hold_h"
 
 
+@pytest.mark.parametrize("demo, path, bad", [
+    # (demo, field, a value the loader refuses): the field's hint states the range the loader names
+    (DEMO, "schedule.start_c", 41.0),
+    (DEMO, "schedule.steps[0].ramp_to_c", -197.0),
+    (DEMO, "schedule.steps[1].hold_h", 0.0),
+    (DEMO, "schedule.steps[1].hold_h", 17521.0),
+    ("slow-freeze-dmso", "schedule.steps[1].hold_min", 0.0),
+    ("slow-freeze-dmso", "schedule.steps[5].plunge_to_c", -200.0),
+])
+def test_a_fields_hint_states_the_range_the_loader_enforces(demo, path, bad):
+    from planner.ui.fields import hint_for, range_for
+
+    m = PlannerModel(evaluate=stand_in_evaluate(), inline=True)
+    m.load_demo(demo)
+    assert m.current and hint_for(path).startswith("valid: ")
+    m.set_value(path, bad)
+    message = m.field_errors[path]  # the loader's own refusal, as the field shows it
+    allowed = message.split("allowed: ", 1)[1]
+    assert allowed == range_for(path).split(";")[0]
+    assert f"valid: {allowed}" in hint_for(path)
+
+
+def test_a_rigid_chambers_temperature_limit_is_in_the_hint_as_the_loader_states_it():
+    from planner.ui.fields import hint_for
+
+    m = PlannerModel(evaluate=stand_in_evaluate(), inline=True)
+    m.load_demo("rigid-chamber-hold")
+    m.set_value("schedule.steps[0].ramp_to_c", -22.0)
+    message = m.field_errors["schedule.steps[0].ramp_to_c"]
+    # the ice Ih-III-liquid triple point, 251.165 K [ref:iapws-r14-08], is -21.985 C
+    assert "no colder than -21.985 C in a rigid chamber" in message
+    assert "in a rigid chamber no colder than -21.985" in hint_for("schedule.steps[0].ramp_to_c")
+
+
+def test_range_hints_keep_the_words_and_leave_the_labels_alone():
+    from planner.ui.fields import hint_for
+
+    # the labels the browser tests find the fields by
+    assert [label_for(p) for p in ("schedule.start_c", "schedule.steps[1].hold_h", "schedule.steps[1].hold_min",
+                                   "schedule.steps[2].plunge_to_c")] == [
+        "Start temperature (°C)", "Hold for (h)", "Hold for (min)", "Plunge into bath at (°C)"]
+    assert hint_for("sample.volume_ml") == "volume of the sample body"  # no range kept as data for it
+    assert hint_for("environment.heat_transfer") == "how heat leaves the sample"
+
+
 def test_number_formatting_for_the_screen():
     assert fmt(None) == "–"
     assert fmt(3.14159) == "3.142"
@@ -205,7 +250,12 @@ def test_rows_are_added_removed_and_moved(model):
     n = len(steps)
     index = model.add_row("schedule.steps", "hold")
     assert index == n and model.value(f"schedule.steps[{n}]") == {"hold_h": None}
-    assert "schedule.steps[3].hold_h" in model.field_errors or model.field_errors  # an empty hold is refused
+    # an empty hold reaches the loader as an empty step (the draft keeps no empty values): the row is refused
+    assert model.field_errors == {
+        f"schedule.steps[{n}]": f"schedule.steps[{n}]: {{}} is not valid; allowed: exactly one of: ramp_to_c, "
+                                "hold_h, hold_min, plunge_to_c, seed_ice"}
+    assert model.errors_within(f"schedule.steps[{n}]") == [model.field_errors[f"schedule.steps[{n}]"]]
+    assert not model.current and model.message == ""  # shown on the row, so not repeated as a message
     model.set_value(f"schedule.steps[{n}].hold_h", "1")
     assert model.current
     model.move_row(f"schedule.steps[{n}]", -1)
@@ -246,7 +296,11 @@ def test_the_cells_block_is_optional_and_comes_back_as_it_was(model):
 
 def test_an_error_outside_any_field_is_a_message(model):
     model.set_value("schema", "coldmargin/protocol-0")
-    assert model.field_errors.get("schema") or model.message
+    expected = "schema: 'coldmargin/protocol-0' is not valid; allowed: exactly 'coldmargin/protocol-1'"
+    assert model.step_of_error("schema") is None  # no step shows the schema key ...
+    assert model.field_errors == {"schema": expected}
+    assert model.message == expected  # ... so the loader's message is shown as a message
+    assert model.stale and not model.current
     assert model.step_of_error("sample.volume_ml") == "sample"
     assert model.step_of_error("schedule.steps[1].hold_h") == "schedule"
     assert model.step_of_error("solution.cryoprotectants[0].agent") == "solution"
@@ -264,7 +318,9 @@ def test_upload_blank_and_download(model):
         model.load_upload("list.yaml", b"- 1\n- 2\n")
     model.start_blank()
     assert model.value("sample.volume_ml") is None and model.report is None
-    assert model.field_errors or model.message  # a blank protocol says what is missing
+    # a blank protocol says what is missing, first the title (the loader checks required keys in order)
+    assert model.field_errors == {"title": "title: 'missing' is not valid; allowed: a value is required"}
+    assert model.message == ""  # the title field shows it
 
 
 def test_assessments_are_reused_for_a_draft_seen_before():

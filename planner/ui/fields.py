@@ -173,8 +173,38 @@ def choices_for(path: str) -> tuple[str, ...]:
     return FIELD_TEXT.get(pattern_of(path), FieldText()).choices
 
 
+def loader_ranges() -> dict[str, str]:
+    """Valid ranges, in the loader's own words, of the keys whose bounds :mod:`planner.protocol` keeps as
+    data (its module constants); the bounds of other keys are written only in the loader's checks.
+
+    The lower bound of a hold ("above 0") is the one part not read from there: the loader writes it as a
+    literal. ``tests/test_ui_planner.py`` compares every range here with the loader's own refusal.
+    """
+    from planner import protocol as p
+
+    temperature = p._range_words(p.COLDEST_C, p.WARMEST_C, False)
+    rigid = f"; in a rigid chamber no colder than {p.IH_III_TRIPLE_POINT_C:.3f}"
+    return {
+        "schedule.start_c": temperature,
+        "schedule.steps[].ramp_to_c": temperature + rigid,
+        "schedule.steps[].plunge_to_c": temperature + rigid,
+        "schedule.steps[].hold_h": p._range_words(0.0, p.MAX_SCHEDULE_H, True),
+        "schedule.steps[].hold_min": p._range_words(0.0, p.MAX_SCHEDULE_H * 60, True),
+    }
+
+
+def range_for(path: str) -> str:
+    """The valid range of the key at ``path`` as the loader states it, or "" where it keeps none as data."""
+    return loader_ranges().get(pattern_of(path), "")
+
+
 def hint_for(path: str) -> str:
-    return FIELD_TEXT.get(pattern_of(path), FieldText()).hint
+    """The hint shown with a field: its words, then its valid range where the loader keeps one as data."""
+    words = FIELD_TEXT.get(pattern_of(path), FieldText()).hint
+    valid = range_for(path)
+    if valid:
+        valid = f"valid: {valid}"
+    return "; ".join(part for part in (words, valid) if part)
 
 
 def css_name(path: str) -> str:
