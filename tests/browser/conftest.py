@@ -25,6 +25,10 @@ SCREENSHOTS = ROOT / "test-output" / "screenshots"
 CHROMIUM_ARGS = [
     "--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
     "--disable-component-update", "--disable-quic", "--no-first-run", "--disable-sync",
+    # no internet for the page: every host name but the loopback address fails to resolve, and anything
+    # asked for by address goes to a proxy that is not there (loopback never goes through a proxy)
+    "--host-resolver-rules=MAP * ~NOTFOUND, EXCLUDE 127.0.0.1",
+    "--proxy-server=http://127.0.0.1:9",
 ]
 START_TIMEOUT_S = 90
 PASSPHRASE = "test passphrase for the browser run"

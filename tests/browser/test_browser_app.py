@@ -78,6 +78,48 @@ def test_step_through_the_demo_end_to_end(plan, server, shot):
     _only_local(plan, server)
 
 
+def test_the_page_has_its_fonts_and_charts_with_no_internet(plan, server, shot):
+    """The browser has no way out of the loopback address (see CHROMIUM_ARGS): the page's icon font and
+    charts still come, from the app's own server."""
+    _open_plan(plan, server)
+    plan.locator(".cm-body .cm-chart svg").first.wait_for(timeout=60_000)
+    plan.evaluate("document.fonts.ready")
+    loaded = plan.evaluate("() => [...document.fonts].filter(f => f.status === 'loaded').map(f => f.family)")
+    assert any("FontAwesome" in f or "Font Awesome" in f for f in loaded), loaded
+    probe = "https://cdn.jsdelivr.net/"  # the browser itself cannot reach outside
+    assert plan.evaluate(f"() => fetch('{probe}').then(() => 'reached', () => 'blocked')") == "blocked"
+    plan.requests_seen.remove(probe)
+    shot(plan, "plan-offline-sample")
+    _only_local(plan, server)
+
+
+def test_the_rigid_demo_shows_its_chamber_chart(plan, server, shot):
+    """Pressure and ice fraction against temperature, with the planned hold and the worst case marked."""
+    plan.get_by_label("Start from", exact=True).select_option("demo: rigid-chamber-hold")
+    plan.get_by_role("button", name="Open", exact=True).click()
+    plan.wait_for_timeout(800)
+    if plan.locator(".cm-app-message", has_text="click Open again").count():
+        plan.get_by_role("button", name="Open", exact=True).click()
+    plan.get_by_role("button", name="Container", exact=True).click()
+    chart = plan.locator(".cm-step-container .cm-chart-box")
+    chart.locator("svg").first.wait_for(timeout=60_000)
+    plan.locator(".cm-step-container .cm-chart-updating").wait_for(state="detached")
+    text = chart.text_content().replace("\u2212", "-")
+    assert "planned hold -4.0" in text and "worst case -22.0" in text, text[:400]
+    shot(plan, "plan-rigid-container")
+    _only_local(plan, server)
+
+
+def test_the_other_pages_open_from_the_plan(plan, server, shot):
+    """The plan's links to the other pages work with the sign-in the plan's address gave."""
+    with plan.context.expect_page() as opened:
+        plan.get_by_role("link", name="archive").click()
+    other = opened.value
+    other.get_by_label("Archive file", exact=True).wait_for(timeout=120_000)
+    shot(other, "archive-from-plan-link")
+    other.close()
+
+
 def test_changing_the_concentration_moves_the_freezing_point_and_margins(plan, server, shot):
     _open_plan(plan, server)
     plan.get_by_role("button", name="Solution", exact=True).click()
