@@ -499,11 +499,12 @@ def test_a_key_the_planner_asks_for_gets_a_box_of_its_own():
 
 def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
     """While the notebook runs no page is connected: the first assessment and chart are made in line (no
-    thread touches widgets before a page is there), the workers take over afterwards."""
+    thread touches widgets before a page is there), the workers take over afterwards. Outside voila (a
+    script, or a notebook in Jupyter) the chart is drawn at once."""
     from planner.ui.planner_app import PlannerApp
 
     monkeypatch.setenv("COLDMARGIN_PROTOCOL", str(ROOT / "protocols" / f"{DEMO}.yaml"))
-    monkeypatch.setenv("VOILA_PREHEAT", "True")  # a pre-started kernel: no page waits for this notebook
+    monkeypatch.delenv("VOILA_PREHEAT", raising=False)
     app = PlannerApp()
     assert app.model.current and "<svg" in app.step_views["sample"].chart.value
     assert not app.model.worker.inline
@@ -511,12 +512,35 @@ def test_the_app_is_built_in_line_then_uses_threads(monkeypatch):
     assert not app.charts_held and not hasattr(app, "page_shown")
 
 
-def _held_app(monkeypatch):
+def _held_app(monkeypatch, preheat: str = "False"):
     from planner.ui.planner_app import PlannerApp
 
     monkeypatch.setenv("COLDMARGIN_PROTOCOL", str(ROOT / "protocols" / f"{DEMO}.yaml"))
-    monkeypatch.setenv("VOILA_PREHEAT", "False")  # as voila sets it in a kernel started for one page
+    monkeypatch.setenv("VOILA_PREHEAT", preheat)  # "False": a kernel started for one page; "True": pre-started
     return PlannerApp()
+
+
+def test_a_pre_started_kernel_holds_the_chart_and_warms_the_engine_without_touching_widgets(monkeypatch):
+    """A pre-started kernel may be handed to a page that is already waiting: the chart waits for the page,
+    and the chart engine is warmed meanwhile (a kernel started for one page does not warm it: it would
+    hold the interpreter while that page loads)."""
+    import threading
+
+    from planner.ui import planner_app
+
+    warmed = threading.Event()
+    monkeypatch.setattr(planner_app, "_warm_charts", warmed.set)
+    monkeypatch.setattr(planner_app, "WARM_UP_AFTER_S", 0.0)
+    app = _held_app(monkeypatch, "True")
+    assert app.charts_held and "<svg" not in app.step_views["sample"].chart.value
+    assert warmed.wait(timeout=10)
+    app.page_shown.shown = True
+    app.step_views["sample"].chart_worker.wait(timeout=60)
+    assert "<svg" in app.step_views["sample"].chart.value
+
+    warmed.clear()
+    app = _held_app(monkeypatch, "False")
+    assert app.charts_held and not warmed.wait(timeout=0.5)
 
 
 def test_a_page_kernel_draws_the_first_chart_once_the_page_says_it_is_up(monkeypatch):

@@ -351,6 +351,19 @@ class StepViews(dict):
         return view
 
 
+WARM_UP_AFTER_S = 0.5
+
+
+def _warm_charts() -> None:
+    try:
+        import planner.ui.stepcharts  # noqa: F401  (altair and the step charts)
+        from planner.ui.svg import warm_up
+
+        warm_up()
+    except Exception:  # a failed warm-up only means the first chart is slower
+        pass
+
+
 class PlannerApp:
     """The planner in steps: Sample → Container → Solution → Schedule → Cells → Review → Sign & archive.
 
@@ -369,12 +382,12 @@ class PlannerApp:
         # While the notebook runs no page is connected yet (always so in a pre-started kernel, and often
         # with many viewers at once). The app is built and assessed in line; the worker threads take over
         # afterwards, when every update answers a person's input on a connected page.
-        # In a kernel started for one page's request, the first chart (altair's import and the SVG engine's
-        # start, ~1 s) waits until that page says it has shown the app, so the page opens that much sooner;
-        # a pre-started kernel has time to spare and draws it in line.
+        # In a kernel voila starts (for one page's request, or pre-started), the first chart (altair's
+        # import and the SVG engine's start, ~1 s) waits until a page says it has shown the app, so the
+        # page opens that much sooner; a pre-started kernel warms the engine meanwhile.
         threaded_later = model is None and not inline
         self.model = model or PlannerModel(inline=True if threaded_later else inline)
-        self.charts_held = threaded_later and os.environ.get("VOILA_PREHEAT") == "False"
+        self.charts_held = threaded_later and os.environ.get("VOILA_PREHEAT") in ("False", "True")
         self.syncing = False
         self._confirm: str | None = None
         self._lock = threading.RLock()
@@ -419,6 +432,13 @@ class PlannerApp:
             self.page_shown = PageShown()
             self.page_shown.observe(lambda change: self.release_charts(), names="shown")
             self.widget.children = (*self.widget.children, self.page_shown)
+        if self.charts_held and os.environ.get("VOILA_PREHEAT") == "True":
+            # a pre-started kernel warms the chart engine once the notebook's output is out, so the chart
+            # follows a page at once. It touches no widget. A kernel started for a waiting page does not:
+            # the engine holds the interpreter ~0.6 s, which there delays the page by as much.
+            warm = threading.Timer(WARM_UP_AFTER_S, _warm_charts)
+            warm.daemon = True
+            warm.start()
 
     def release_charts(self) -> None:
         """Draw charts from now on (the page is up); the current step's chart is drawn at once."""
