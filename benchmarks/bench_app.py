@@ -11,7 +11,8 @@
 4. ten viewers opening the app at once: time until all ten are interactive, and the machine's memory.
 
 Run: ``.venv/bin/python benchmarks/bench_app.py [--quick] [--no-viewers]``; only the ten viewers:
-``--viewers-only [--viewers-pool 10]``.
+``--viewers-only [--viewers-pool 10]``; cold starts only: ``--cold-only [--cold-runs N] [--cold-pools 0,1]``.
+``BENCH_VOILA_LOG=1`` prints each server's voila warnings (and keeps its log in /tmp) when it stops.
 
 Figures on this machine (2 cores, quiet: load average under 2 at each start), 2026-12-02:
 
@@ -33,6 +34,19 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
   18.7 GB of memory stayed available. No pool: all ten interactive after 106 s.
 - 2026-12-02, later quiet runs (load average under 1): cold start, medians of 3 and of 7, pool 0 4.3–4.6 s,
   pool 1 (page asked for at once) 4.1–4.8 s.
+- 2026-12-02, second session, a slower day (the unchanged code's cold start measured 6.2 s against 4.3 s
+  the session before; round trips ~20 % slower). The first chart now waits for the page's own signal,
+  and voila waits for a cell's output as long as for the notebook:
+  - cold start, rigid demo: no pool, interleaved with the previous code, medians of 12: 5.0 s against
+    6.2 s; then medians of 7: 5.2 s (chart 6.1 s). Pool of one, page asked for at once: 6.3 s, then
+    5.7 s (median of 5) once the pre-started kernel held its chart too. A page on a ready pool kernel:
+    1.9–2.4 s, its chart within 0.35 s of that.
+  - round trips in the page / seen by the driver, medians over 20: open vial 107 / 175, 166 / 240,
+    111 / 168 ms; rigid chamber 189 / 248, 231 / 298, 121 / 169 ms. Kernel memory 298 / 371 MB.
+  - ten viewers at once: no pool 10 of 10, all interactive after 85.9 s (80.2 s in another run; before,
+    0 of 10 in two runs with the chart held and nbclient's 4 s output wait); ``--pool 10``: kernels ready
+    20.6 s after start, all ten interactive 48.8 s after launch, 218 MB per kernel, 18.9 GB of memory
+    still available.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
