@@ -73,6 +73,15 @@ ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-net
         "--disable-backgrounding-occluded-windows"]
 
 
+# the app's targets on this machine (a figure, never an assert: timings vary from day to day)
+COLD_START_TARGET_S = 5.0
+ROUND_TRIP_TARGET_MS = 300.0
+
+
+def against(value: float, target: float, unit: str) -> str:
+    return f"target {target:g} {unit} {'met' if value <= target else 'MISSED'}"
+
+
 RUNNING: list = []  # servers started by this script, stopped on any exit
 
 
@@ -234,7 +243,8 @@ def round_trips(page, protocol_label: str, changes: int) -> None:
         inside = [b * 1000 for _, b in runs]
         print(f"round trip, {protocol_label}, {what}: in the page median {statistics.median(inside):.0f} ms "
               f"(min {min(inside):.0f}, max {max(inside):.0f}); seen by the driver median "
-              f"{statistics.median(outside):.0f} ms (min {min(outside):.0f}, max {max(outside):.0f}) over {changes}")
+              f"{statistics.median(outside):.0f} ms (min {min(outside):.0f}, max {max(outside):.0f}) over {changes}; "
+              f"{against(statistics.median(outside), ROUND_TRIP_TARGET_MS, 'ms')} (driver's median)")
 
 
 # what a page that never became usable holds (printed with its console)
@@ -385,7 +395,8 @@ def main() -> None:
                 page.close()
                 stop(proc, folder)
             print(f"cold start, pool {pool}, medians over {len(cold)}: interactive {statistics.median(cold):.1f} s, "
-                  f"assessed {statistics.median(strip):.1f} s, chart {statistics.median(chart):.1f} s")
+                  f"assessed {statistics.median(strip):.1f} s, chart {statistics.median(chart):.1f} s; "
+                  f"{against(statistics.median(cold), COLD_START_TARGET_S, 's')} (interactive)")
 
         if args.viewers_only:
             viewers_at_once(browser, viewers, pool=args.viewers_pool)

@@ -599,3 +599,48 @@ def test_isolated_percent_formatting_of_margins():
     row = MarginRow("p", "Chance", 0.0096, "1", "fine", 0.01, 0.05, "lower", "default")
     assert row.value_text == "0.0096" and row.threshold_text == "watch above 0.01, stop above 0.05 (default policy)"
     assert math.isfinite(row.value)
+
+
+def test_the_compare_map_runs_off_the_page_and_shows_progress(monkeypatch):
+    """Long work never freezes the page: while the freeze map is computed, the progress bar is shown and an
+    edit on the page's own thread is taken at once; the bar goes when the map arrives."""
+    import threading
+
+    from planner.ui import maps
+    from planner.ui.compare_app import CompareApp
+    from planner.ui.compare_model import CompareModel
+
+    started, release = threading.Event(), threading.Event()
+    real = maps.freeze_map
+
+    def slow_map(*args, **kwargs):
+        started.set()
+        assert release.wait(timeout=60)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(maps, "freeze_map", slow_map)
+    release.set()  # the first map, drawn while the app is built, is not held
+    model = CompareModel([DEMO, "rigid-chamber-hold"], inline=True)  # the real assessment: the map needs it
+    app = CompareApp(model=model)
+    app.wait()
+    # the page is up: the map and charts are worked out on threads from here on, as in voila
+    app.model.inline = False
+    from planner.ui.work import Worker
+
+    for m in app.model.scenarios:
+        m.worker = Worker(inline=False)
+    app.chart_worker, app.map_worker = Worker(inline=False), Worker(inline=False)
+    started.clear()
+    release.clear()
+    column = app.columns[0]
+    path, box, err = next(i for i in column.inputs if i[0] == "sample.volume_ml")
+    box.value = "0.5"
+    assert started.wait(timeout=60)  # the map is being computed on its thread ...
+    assert app.map_progress.layout.display == ""
+    box.value = "0.8"  # ... and the page's thread takes an edit meanwhile
+    assert app.model.scenarios[0].value(path) == 0.8
+    assert app.map_progress.layout.display == ""
+    release.set()
+    app.wait()
+    assert app.map_progress.layout.display == "none"
+    assert "<svg" in app.map.value
