@@ -83,6 +83,7 @@ def test_the_page_has_its_fonts_and_charts_with_no_internet(plan, server, shot):
     charts still come, from the app's own server."""
     _open_plan(plan, server)
     plan.locator(".cm-body .cm-chart svg").first.wait_for(timeout=60_000)
+    plan.locator(".cm-body .cm-chart-updating").wait_for(state="detached", timeout=60_000)
     plan.evaluate("document.fonts.ready")
     loaded = plan.evaluate("() => [...document.fonts].filter(f => f.status === 'loaded').map(f => f.family)")
     assert any("FontAwesome" in f or "Font Awesome" in f for f in loaded), loaded
