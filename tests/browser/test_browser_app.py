@@ -33,10 +33,10 @@ def plan(browser, server):
     context.close()
 
 
-def _open_plan(page, server):
-    """Start from the demo again (the Open button reloads it) and show the first step."""
+def _open_plan(page, server, demo: str = "supercooled-open-vial"):
+    """Start from a demo again (the Open button reloads it) and show the first step."""
     before = _strip(page)
-    page.get_by_label("Start from", exact=True).select_option("demo: supercooled-open-vial")
+    page.get_by_label("Start from", exact=True).select_option(f"demo: {demo}")
     page.get_by_role("button", name="Open", exact=True).click()
     page.wait_for_timeout(800)
     if page.locator(".cm-app-message", has_text="click Open again").count():  # typed changes are not dropped
@@ -96,11 +96,7 @@ def test_the_page_has_its_fonts_and_charts_with_no_internet(plan, server, shot):
 
 def test_the_rigid_demo_shows_its_chamber_chart(plan, server, shot):
     """Pressure and ice fraction against temperature, with the planned hold and the worst case marked."""
-    plan.get_by_label("Start from", exact=True).select_option("demo: rigid-chamber-hold")
-    plan.get_by_role("button", name="Open", exact=True).click()
-    plan.wait_for_timeout(800)
-    if plan.locator(".cm-app-message", has_text="click Open again").count():
-        plan.get_by_role("button", name="Open", exact=True).click()
+    _open_plan(plan, server, "rigid-chamber-hold")
     plan.get_by_role("button", name="Container", exact=True).click()
     chart = plan.locator(".cm-step-container .cm-chart-box")
     chart.locator("svg").first.wait_for(timeout=60_000)
