@@ -498,6 +498,8 @@ def _solution(node: Any, path: str) -> Solution:
 def _schedule(node: Any, container: Container) -> Schedule:
     s = _Section(node, "schedule", ("start_c", "steps"), ("start_c", "steps"))
     start_c = s.number("start_c", COLDEST_C, WARMEST_C)
+    if container.kind == "rigid" and start_c < IH_III_TRIPLE_POINT_C:
+        raise InputError("schedule.start_c", start_c, _rigid_coldest())
     steps: list[Step] = []
     current_c = start_c
     total_s = 0.0
@@ -549,15 +551,17 @@ def _schedule(node: Any, container: Container) -> Schedule:
             step = Step(i, "seed", at_c + CELSIUS_OFFSET)
         if container.kind == "rigid" and current_c < IH_III_TRIPLE_POINT_C:
             key = "plunge_to_c" if kind == "plunge_to_c" else "ramp_to_c"
-            raise InputError(f"{at}.{key}", current_c,
-                             f"no colder than {IH_III_TRIPLE_POINT_C:.3f} C in a rigid chamber (the ice "
-                             "Ih-III-liquid triple point: below it ice III forms and the ice Ih models do "
-                             "not apply)")
+            raise InputError(f"{at}.{key}", current_c, _rigid_coldest())
         steps.append(step)
     if total_s > MAX_SCHEDULE_H * 3600.0:
         raise InputError("schedule.steps", f"{total_s / 3600:.0f} h in all",
                          f"a schedule of at most {MAX_SCHEDULE_H:g} h")
     return Schedule(start_c + CELSIUS_OFFSET, tuple(steps))
+
+
+def _rigid_coldest() -> str:
+    return (f"no colder than {IH_III_TRIPLE_POINT_C:.3f} C in a rigid chamber (the ice Ih-III-liquid triple "
+            "point: below it ice III forms and the ice Ih models do not apply)")
 
 
 def _environment(node: Any) -> Environment:

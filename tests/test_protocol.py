@@ -82,6 +82,8 @@ def test_round_trip_through_yaml_keeps_everything():
         ("{hold_h: 48}", "{hold_hours: 48}", "schedule.steps[1]", "did you mean 'hold_h'"),
         ("{ramp_to_c: -4.0, rate_c_per_min: 0.5}", "{ramp_to_c: -30.0, rate_c_per_min: 0.5}",
          "schedule.steps[0].ramp_to_c", "triple point"),
+        # a rigid chamber that starts below the triple point is refused at start_c, not later by a section
+        ("start_c: 4.0", "start_c: -30.0", "schedule.start_c", "triple point"),
         ("schema: coldmargin/protocol-1", "schema: coldmargin/protocol-9", "schema", "coldmargin/protocol-1"),
         ("carrier: isotonic-saline ", "carrier: saline ", "solution.carrier", "isotonic-saline"),
         ("{agent: glycerol, mass_percent: 10.0}", "{agent: glycerine, mass_percent: 10.0}",

@@ -102,6 +102,28 @@ def test_chart_builders_draw_offline_and_skip_missing_points():
         assert svg.startswith("<svg") and "http" not in svg.replace("http://www.w3.org", "")
 
 
+def _text_positions(svg):
+    """aria label -> (x, y) of each text mark of a chart's SVG."""
+    return {label: (float(x), float(y)) for label, x, y in re.findall(
+        r'<text aria-label="([^"]*)"[^>]*transform="translate\(([-\d.]+),([-\d.]+)\)"', svg)}
+
+
+def test_freeze_map_labels_sit_inside_their_cell_and_shared_cells_share_one_label():
+    """A scenario's label is drawn inside its boxed cell, nearer its own number than the number of the
+    cell above (drawn above the box it covered that number); two scenarios in one cell get one label."""
+    from planner.ui.stepcharts import freeze_map_chart
+    from planner.ui.svg import chart_svg
+
+    svg = chart_svg(freeze_map_chart([1, 2], [-2, -4], [[0.01, 0.02], [0.05, 0.1]],
+                                     marks=[(1.0, -4.0, "A"), (1.0, -4.0, "B"), (2.0, -2.0, "C")]))
+    at = _text_positions(svg)
+    label_ab, own, above = at["v: 1; t: -4; label: A B"], at["v: 1; t: -4; p: 0.05"], at["v: 1; t: -2; p: 0.01"]
+    assert label_ab[0] == own[0] and label_ab[1] < own[1]  # above its own number, in the same column
+    assert own[1] - label_ab[1] < label_ab[1] - above[1]
+    assert "v: 2; t: -2; label: C" in at
+    assert sum(1 for k in at if "label:" in k) == 2  # one label per boxed cell
+
+
 def _svg_texts(html_text):
     return set(re.findall(r"<text[^>]*>([^<]*)</text>", html_text))
 
@@ -310,6 +332,27 @@ def test_archive_app_offers_the_record_and_both_renderings_for_download(signed):
     text, mime, pdf = links[f"{stem}.pdf"]
     assert (text, mime) == ("rendering (PDF)", "application/pdf")
     assert pdf.startswith(b"%PDF-") and pdf.rstrip().endswith(b"%%EOF")
+
+
+def test_a_new_hold_row_shows_its_error_beside_its_hold_box_not_on_the_row():
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml",
+                     model=PlannerModel(evaluate=stand_in_evaluate(), inline=True))
+    app.model.go("schedule")
+    rows = app.step_views["schedule"].rows[0]
+    n = len(app.model.value("schedule.steps"))
+    rows.new_kind.value = "hold"
+    add = [c for c in rows.box.children[-1].children if "cm-add" in c._dom_classes][0]
+    add.click()
+    rows = app.step_views["schedule"].rows[0]
+    box = [fv for fv in rows.fields if fv.path == f"schedule.steps[{n}].hold_h"][0]
+    assert "a value is required" in box.error.value and "cm-field-bad" in box.input._dom_classes
+    row_error = dict(rows.row_errors)[f"schedule.steps[{n}]"]
+    assert row_error.value == ""  # not repeated on the row
+    box.input.value = "2"
+    assert box.error.value == "" and app.model.current
 
 
 def test_sign_step_shows_the_record_and_offers_three_downloads(tmp_path):

@@ -250,12 +250,13 @@ def test_rows_are_added_removed_and_moved(model):
     n = len(steps)
     index = model.add_row("schedule.steps", "hold")
     assert index == n and model.value(f"schedule.steps[{n}]") == {"hold_h": None}
-    # an empty hold reaches the loader as an empty step (the draft keeps no empty values): the row is refused
+    # an empty hold reaches the loader as an empty step (the draft keeps no empty values); the refusal is
+    # shown on the box to fill, in the loader's words for a missing value
     assert model.field_errors == {
-        f"schedule.steps[{n}]": f"schedule.steps[{n}]: {{}} is not valid; allowed: exactly one of: ramp_to_c, "
-                                "hold_h, hold_min, plunge_to_c, seed_ice"}
-    assert model.errors_within(f"schedule.steps[{n}]") == [model.field_errors[f"schedule.steps[{n}]"]]
-    assert not model.current and model.message == ""  # shown on the row, so not repeated as a message
+        f"schedule.steps[{n}].hold_h": f"schedule.steps[{n}].hold_h: 'missing' is not valid; allowed: a value is "
+                                       "required"}
+    assert model.errors_within(f"schedule.steps[{n}]") == [model.field_errors[f"schedule.steps[{n}].hold_h"]]
+    assert not model.current and model.message == ""  # shown on the box, so not repeated as a message
     model.set_value(f"schedule.steps[{n}].hold_h", "1")
     assert model.current
     model.move_row(f"schedule.steps[{n}]", -1)
@@ -264,6 +265,29 @@ def test_rows_are_added_removed_and_moved(model):
     assert len(model.value("schedule.steps")) == n
     with pytest.raises(InputError, match="new row"):
         model.add_row("schedule.steps", "teleport")
+
+
+@pytest.mark.parametrize("list_path, kind, box", [
+    ("schedule.steps", "seed ice", "seed_ice.at_c"),
+    ("schedule.steps", "ramp", "ramp_to_c"),
+    ("schedule.steps", "plunge", "plunge_to_c"),
+    ("solution.cryoprotectants", None, "agent"),
+])
+def test_a_new_empty_row_is_refused_at_its_first_box(model, list_path, kind, box):
+    index = model.add_row(list_path, kind)
+    path = f"{list_path}[{index}].{box}"
+    assert list(model.field_errors) == [path]
+    assert model.field_errors[path] == f"{path}: 'missing' is not valid; allowed: a value is required"
+    assert model.step_of_error(path) == model.step_of_error(f"{list_path}[{index}]")
+
+
+def test_a_row_with_something_typed_keeps_the_loaders_own_error(model):
+    n = model.add_row("schedule.steps", "ramp")
+    model.set_value(f"schedule.steps[{n}].ramp_to_c", "2")
+    # the rate is still empty: the loader itself names that box
+    assert list(model.field_errors) == [f"schedule.steps[{n}].rate_c_per_min"]
+    model.set_value(f"schedule.steps[{n}].rate_c_per_min", "1")
+    assert model.field_errors == {} and model.current
 
 
 def test_the_last_schedule_step_cannot_be_removed(model):

@@ -37,7 +37,7 @@ class ArchiveApp:
         self.result = html_box("", "cm-archive-result")
         self.downloads = html_box("", "cm-archive-downloads")
         self.view = html_box("", "cm-archive-view")
-        self.large = w.ToggleButton(value=False, description="Large type")
+        self.large = w.ToggleButton(value=False, description="Large type", layout=w.Layout(width="auto"))
         self.large.observe(lambda ch: self._large(ch["new"]), names="value")
         self.widget = w.VBox([
             html_box(style_html()),

@@ -53,7 +53,8 @@ class CalibrateApp:
                              demos[0] if demos else "", "cm-cal-demo")
         self.open_demo = button("Open demo", "cm-cal-open")
         self.open_demo.on_click(lambda _b: self._load(lambda: self.model.load_demo(self.demo.value)))
-        self.upload = w.FileUpload(accept=".csv", multiple=False, description="Upload assay (.csv)")
+        self.upload = w.FileUpload(accept=".csv", multiple=False, description="Upload assay (.csv)",
+                                  layout=w.Layout(width="auto"))
         self.upload.observe(self._uploaded, names="value")
         self.fit_button = button("Fit", "cm-cal-fit", "primary")
         self.fit_button.on_click(lambda _b: self._fit())

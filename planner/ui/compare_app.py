@@ -94,15 +94,18 @@ class CompareApp:
         self.map_progress.layout.display = "none"
         self.map_progress.add_class("cm-map-progress")
         self.columns_box = w.HBox()
+        self.columns_box.add_class("cm-columns")  # side by side always (rows of tools may wrap)
         self.columns: list[ScenarioColumn] = []
         demos_known = list(demo_files())
         self.add_choice = dropdown("Add scenario", [("copy of A", "copy")] + [(f"demo: {d}", d) for d in demos_known],
                                    "copy", "cm-add-scenario-choice")
         self.add_button = button("Add", "cm-add-scenario", "primary")
         self.add_button.on_click(lambda _b: self._add())
-        self.upload = w.FileUpload(accept=".yaml,.yml", multiple=False, description="Add from file")
+        self.upload = w.FileUpload(accept=".yaml,.yml", multiple=False, description="Add from file",
+                                  layout=w.Layout(width="auto"))
         self.upload.observe(self._uploaded, names="value")
-        self.large = w.ToggleButton(value=os.environ.get("COLDMARGIN_LARGE_TYPE") == "1", description="Large type")
+        self.large = w.ToggleButton(value=os.environ.get("COLDMARGIN_LARGE_TYPE") == "1", description="Large type",
+                                    layout=w.Layout(width="auto"))
         self.large.add_class("cm-large-toggle")
         self.large.observe(lambda ch: self._large(ch["new"]), names="value")
         self.message = html_box("", "cm-compare-message")

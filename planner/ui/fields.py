@@ -185,7 +185,7 @@ def loader_ranges() -> dict[str, str]:
     temperature = p._range_words(p.COLDEST_C, p.WARMEST_C, False)
     rigid = f"; in a rigid chamber no colder than {p.IH_III_TRIPLE_POINT_C:.3f}"
     return {
-        "schedule.start_c": temperature,
+        "schedule.start_c": temperature + rigid,
         "schedule.steps[].ramp_to_c": temperature + rigid,
         "schedule.steps[].plunge_to_c": temperature + rigid,
         "schedule.steps[].hold_h": p._range_words(0.0, p.MAX_SCHEDULE_H, True),

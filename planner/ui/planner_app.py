@@ -475,11 +475,13 @@ class PlannerApp:
         self.start_choice = dropdown("Start from", options, options[0][1], "cm-start")
         self.open_button = button("Open", "cm-open", "primary")
         self.open_button.on_click(lambda _b: self._open_start())
-        self.upload = w.FileUpload(accept=".yaml,.yml", multiple=False, description="Upload protocol")
+        self.upload = w.FileUpload(accept=".yaml,.yml", multiple=False, description="Upload protocol",
+                                  layout=w.Layout(width="auto"))
         self.upload.add_class("cm-upload")
         self.upload.observe(self._uploaded, names="value")
         self.download = html_box("", "cm-download-box")
-        self.large = w.ToggleButton(value=False, description="Large type", tooltip="larger text for a projector")
+        self.large = w.ToggleButton(value=False, description="Large type", tooltip="larger text for a projector",
+                                    layout=w.Layout(width="auto"))
         self.large.add_class("cm-large-toggle")
         self.large.observe(self._large, names="value")
         links = html_box(

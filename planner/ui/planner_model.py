@@ -365,6 +365,7 @@ class PlannerModel(traitlets.HasTraits):
 
     def _failed(self, revision: int, exc: BaseException) -> None:
         if isinstance(exc, InputError):
+            exc = self._on_empty_box(exc)
             self.field_errors = {exc.field: str(exc)}
             self.message = "" if self._field_shown(exc.field) else str(exc)
         elif isinstance(exc, PlannerError):
@@ -376,6 +377,28 @@ class PlannerModel(traitlets.HasTraits):
         self.stale = self.evaluation is not None
         self.working = False
         self.result_revision += 1
+
+    def _on_empty_box(self, exc: InputError) -> InputError:
+        """A row refused as a whole because its boxes are all still empty (a row just added) is refused
+        at its first box instead, in the loader's words for a missing value: the person sees the error
+        beside the box to fill, not on the row. Any other error is returned as it is."""
+        import re
+
+        m = re.fullmatch(r"(.+)\[(\d+)\]", exc.field)
+        if m is None:
+            return exc
+        try:
+            spec = self._rows_spec(m.group(1))
+        except InputError:
+            return exc
+        row = self.draft.get(exc.field)
+        kind = spec.kind_of(row)
+        if kind is None or not isinstance(row, dict):
+            return exc
+        boxes = [f"{exc.field}.{f.path}" for f in kind.fields]
+        if any(self.draft.get(b) is not None for b in boxes):
+            return exc  # something is typed: the loader's own words for the row stand
+        return InputError(boxes[0], "missing", "a value is required")
 
     def _field_shown(self, path: str) -> bool:
         return self.step_of_error(path) is not None

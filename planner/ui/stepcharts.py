@@ -190,28 +190,37 @@ def freeze_map_chart(volumes_ml: Sequence[float], temperatures_c: Sequence[float
     (volume [mL], temperature [°C], label).
     """
     p = np.asarray(probability, dtype=float)
+    # Labels sit inside their boxed cell, above its number: drawn above the box they covered the number of
+    # the cell above. Scenarios in the same cell share one box and one label ("A B").
+    marked: dict[tuple[float, float], list[str]] = {}
+    for v, t, lbl in marks:
+        marked.setdefault((_nearest(volumes_ml, v), _nearest(temperatures_c, t)), []).append(lbl)
     rows = [
-        {"v": float(v), "t": float(t), "p": float(p[i, j])}
+        {"v": float(v), "t": float(t), "p": float(p[i, j]),
+         "label": " ".join(marked.get((float(v), float(t)), []))}
         for i, t in enumerate(temperatures_c) for j, v in enumerate(volumes_ml) if math.isfinite(p[i, j])
     ]
+    x = alt.X("v:O", sort="ascending")
+    y = alt.Y("t:O", sort="descending")
     heat = alt.Chart(alt.Data(values=rows)).mark_rect().encode(
         x=alt.X("v:O", title="sample volume (mL)", sort="ascending"),
         y=alt.Y("t:O", title="hold temperature (°C)", sort="descending"),
         color=alt.Color("p:Q", title="P(frozen)", scale=alt.Scale(scheme="greys", domain=[0, 1])),
     )
-    text = alt.Chart(alt.Data(values=rows)).mark_text(fontSize=11).encode(
-        x=alt.X("v:O", sort="ascending"), y=alt.Y("t:O", sort="descending"),
-        text=alt.Text("p:Q", format=".2f"),
-        color=alt.condition("datum.p > 0.5", alt.value("white"), alt.value("black")),
-    )
-    layers: list[alt.Chart] = [heat, text]
-    if marks:
-        mrows = [{"v": _nearest(volumes_ml, v), "t": _nearest(temperatures_c, t), "label": lbl} for v, t, lbl in marks]
-        layers.append(alt.Chart(alt.Data(values=mrows)).mark_point(shape="square", size=900, strokeWidth=3,
-                                                                   color=LIMIT, filled=False)
-                      .encode(x=alt.X("v:O", sort="ascending"), y=alt.Y("t:O", sort="descending")))
-        layers.append(alt.Chart(alt.Data(values=mrows)).mark_text(dy=-20, color=LIMIT, fontWeight="bold")
-                      .encode(x=alt.X("v:O", sort="ascending"), y=alt.Y("t:O", sort="descending"), text="label:N"))
+    ink = alt.condition("datum.p > 0.5", alt.value("white"), alt.value("black"))
+    plain = [r for r in rows if not r["label"]]
+    boxed = [r for r in rows if r["label"]]
+    layers: list[alt.Chart] = [heat, alt.Chart(alt.Data(values=plain)).mark_text(fontSize=11).encode(
+        x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink)]
+    if boxed:
+        # the box is the cell's own outline, so a label as wide as "this plan" stays inside it
+        layers.append(alt.Chart(alt.Data(values=boxed)).mark_rect(fillOpacity=0, stroke=LIMIT, strokeWidth=3)
+                      .encode(x=x, y=y))
+        layers.append(alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=11, dy=6)
+                      .encode(x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink))
+        layers.append(alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=10, dy=-7, fontWeight="bold")
+                      .encode(x=x, y=y, text="label:N",
+                              color=alt.condition("datum.p > 0.5", alt.value("white"), alt.value(LIMIT))))
     return alt.layer(*layers).properties(width=WIDTH, height=HEIGHT + 40,
                                          title=title or "Probability that the sample freezes during the hold")
 

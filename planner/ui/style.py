@@ -16,6 +16,14 @@ CSS = """
 .cm-app h2 { font-size: 1.5em; margin: 0.2em 0; font-weight: 600; }
 .cm-app h3 { font-size: 1.2em; margin: 0.6em 0 0.3em 0; font-weight: 600; }
 .cm-app h4 { font-size: 1.05em; margin: 0.4em 0 0.2em 0; font-weight: 600; }
+/* long labels wrap instead of ending in "...": a label names its unit, and a cut unit is a wrong number */
+.cm-app .widget-text, .cm-app .widget-dropdown { height: auto; min-height: var(--jp-widgets-inline-height, 28px); }
+.cm-app .widget-text .widget-label, .cm-app .widget-dropdown .widget-label { white-space: normal; overflow: visible; text-overflow: clip;
+  line-height: 1.2; height: auto; align-self: center; }
+.cm-app .widget-dropdown > select { height: var(--jp-widgets-inline-height, 28px); align-self: center; }
+/* in large type a row of tools wraps rather than squeezing its buttons into "Lar..." */
+.cm-app .widget-hbox:not(.cm-columns) { flex-wrap: wrap; }
+.cm-app button { flex-shrink: 0; }
 .cm-muted { color: #555; }
 .cm-intro { color: #333; margin: 0.2em 0 0.6em 0; max-width: 60em; }
 .cm-strip { display: flex; flex-wrap: wrap; gap: 8px; padding: 8px; border: 1px solid #c9ced6;
@@ -44,6 +52,8 @@ CSS = """
 .cm-row { border: 1px solid #dde1e6; border-radius: 4px; padding: 4px 6px; margin: 4px 0; }
 .cm-row-title { font-weight: 600; }
 .cm-chart svg { max-width: 100%; height: auto; }
+/* projected: charts grow with the page (their SVG keeps its viewBox), so their labels grow with the text */
+.cm-app.cm-large .cm-chart svg { width: 100%; }
 .cm-nav .widget-toggle-button, .cm-nav button { font-weight: 600; }
 .cm-links a { margin-right: 1.2em; }
 .cm-scenario { min-width: 0; flex: 1 1 0; padding-right: 8px; }

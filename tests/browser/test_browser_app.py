@@ -59,6 +59,23 @@ def _only_local(page, server):
     assert outside == [], f"the page asked outside the app: {outside[:5]}"
 
 
+# the width of the text itself against the room its box gives it, to the sub-pixel: a button squeezed by
+# 0.4 px reports no overflow by its (whole-pixel) scrollWidth, yet draws "A..." for "Add"
+CUT_TEXT = """() => Array.from(document.querySelectorAll('.cm-app .widget-label, .cm-app button'))
+  .filter(e => e.offsetParent !== null && e.innerText.trim())
+  .filter(e => { const r = document.createRange(); r.selectNodeContents(e);
+    const cs = getComputedStyle(e);
+    const room = e.getBoundingClientRect().width - parseFloat(cs.paddingLeft) - parseFloat(cs.paddingRight)
+      - parseFloat(cs.borderLeftWidth) - parseFloat(cs.borderRightWidth);
+    return r.getBoundingClientRect().width > room + 0.05; })
+  .map(e => e.innerText.trim())"""
+
+
+def _cut_text(page) -> list[str]:
+    """Visible labels and buttons whose text does not fit (the browser would end it in an ellipsis)."""
+    return page.evaluate(CUT_TEXT)
+
+
 def test_step_through_the_demo_end_to_end(plan, server, shot):
     _open_plan(plan, server)
     assert "Supercooled hold of red cell suspension" in plan.get_by_label("Protocol title", exact=True).input_value()
@@ -69,12 +86,22 @@ def test_step_through_the_demo_end_to_end(plan, server, shot):
         if title in ("Sample", "Solution", "Schedule"):
             plan.locator(".cm-body .cm-chart svg").first.wait_for(timeout=60_000)  # drawn offline, in the plan
         shot(plan, f"plan-{i + 1}-{title.split()[0].lower()}")
+        assert _cut_text(plan) == [], title  # a label names its unit: none may be cut short
     assert plan.locator(".cm-sign-cautions .cm-caution").count() >= 2  # cautions shown before signing
     assert "Planning support only" in plan.locator(".cm-planning-box").inner_text()
     plan.get_by_role("button", name="Review", exact=True).click()
     plan.locator(".cm-review-margins table").wait_for()
     text = plan.locator(".cm-review-margins").inner_text()
     assert re.search(r"fine|watch|do not proceed", text)
+    plan.get_by_role("button", name="Large type").click()  # as projected in a lab meeting
+    plan.locator(".cm-app.cm-large").wait_for()
+    for title in ("Sample", "Container", "Schedule"):
+        plan.get_by_role("button", name=title, exact=True).click()
+        plan.locator(".cm-body h3", has_text=title).first.wait_for()
+        assert _cut_text(plan) == [], f"{title}, large type"
+    shot(plan, "plan-large-type-schedule")
+    plan.get_by_role("button", name="Large type").click()
+    plan.locator(".cm-app.cm-large").wait_for(state="detached")
     _only_local(plan, server)
 
 
@@ -209,4 +236,5 @@ def test_compare_two_scenarios(page, server, shot):
     page.get_by_role("button", name="Large type").click()
     page.locator(".cm-compare.cm-large").wait_for()
     shot(page, "compare-two-scenarios")
+    assert _cut_text(page) == []  # projected in large type, every label and button still reads whole
     _only_local(page, server)
