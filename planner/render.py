@@ -26,6 +26,7 @@ from xml.sax.saxutils import escape as xml_escape
 
 from planner import charts
 from planner.records import RecordCheck, load_record, record_hash
+from planner.results import shown_flags
 
 PLANNING_SUPPORT = (
     "Planning support only: these numbers come from published models, each with its validity range and "
@@ -189,7 +190,7 @@ def record_view(data: bytes, check: RecordCheck | None = None) -> RecordView:
         verdict_reasons=[str(r) for r in verdict.get("reasons", [])],
         margins=margins,
         cautions=[c for c in a.get("cautions", []) if isinstance(c, dict)],
-        flags=[f for f in a.get("flags", []) if isinstance(f, dict)],
+        flags=shown_flags([f for f in a.get("flags", []) if isinstance(f, dict)]),
         sections=sections,
         series=series,
         protocol_name=str(body["protocol"]["name"]),

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -29,6 +30,38 @@ class Flag:
     code: str
     message: str
     source: str | None = None
+
+
+_SECTION_PREFIX = re.compile(r"([a-z][a-z_-]*): (.+)", re.DOTALL)
+
+
+def shown_flags(flags: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Flags as a reader sees them: one entry for a flag that several sections raise in the same words.
+
+    The assessment prefixes each flag's message with its section ("solution: ...", "chamber: ..."); two
+    flags with the same code, source and words after that prefix are shown once, naming both sections
+    ("solution, chamber: ..."), in the order they first appear. Nothing is dropped: every section that
+    raised the flag is named. The report itself keeps every flag as raised.
+    """
+    merged: dict[tuple[str, str, str], dict[str, Any]] = {}
+    sections: dict[tuple[str, str, str], list[str]] = {}
+    out: list[dict[str, Any]] = []
+    for f in flags:
+        message = str(f.get("message", ""))
+        m = _SECTION_PREFIX.fullmatch(message)
+        section, words = (m.group(1), m.group(2)) if m else ("", message)
+        key = (str(f.get("code", "")), str(f.get("source") or ""), words)
+        if key in merged and section and sections[key]:
+            if section not in sections[key]:
+                sections[key].append(section)
+                merged[key]["message"] = f"{', '.join(sections[key])}: {words}"
+            continue
+        entry = dict(f)
+        if key in merged:  # the same words with no section prefix: a separate entry keeps it exact
+            key = (*key[:2], f"{words}\0{len(out)}")
+        merged[key], sections[key] = entry, [section] if section else []
+        out.append(entry)
+    return out
 
 
 @dataclass

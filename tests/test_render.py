@@ -185,3 +185,15 @@ def test_pdf_chart_heading_stays_with_its_first_chart(pdf_text):
 def heading_kept_with_first_chart(pages):
     with_heading = [i for i, t in enumerate(pages) if "\nCharts\n" in f"\n{t}\n"]
     return bool(with_heading) and "Margins between their thresholds" in pages[with_heading[0]]
+
+
+def test_a_flag_two_sections_raise_is_shown_once_in_the_page_naming_both(assessment):
+    a = json.loads(json.dumps(assessment))
+    words = "trehalose: the sucrose coefficients are used (invented test flag)"
+    a["flags"] = [{"code": "indicative", "message": f"solution: {words}", "source": "crc-handbook"},
+                  {"code": "indicative", "message": f"chamber: {words}", "source": "crc-handbook"}]
+    r = records.record_bytes(records.sign_record(
+        records.build_record(PROTOCOL_TEXT, a, protocol_name="rigid-hold.yaml"), ADA, "authored"))
+    page = render.render_html(r, records.verify_record(r, RING))
+    assert page.count("the sucrose coefficients are used (invented test flag)") == 1
+    assert f"solution, chamber: {words}" in page

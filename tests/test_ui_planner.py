@@ -117,6 +117,13 @@ def test_blank_keeps_the_keys_and_the_schema_only():
     ("environment.h_w_per_m2_k", "Heat-transfer coefficient (W/(m² K))"),
     ("a_new_section.some_pressure_mpa", "Some pressure (MPa)"),  # an unknown key still gets a unit
     ("time_to_within_0p5k_min", "Time to within 0.5 K of the bath (min)"),  # the report key's 0p5k in words
+    # report keys of the nucleation, chamber and "what would it take" results
+    ("critical_radius_nm", "Critical radius (nm)"),
+    ("barrier_kt", "Nucleation barrier (kT)"),
+    ("von_mises_mpa", "Von Mises stress (MPa)"),
+    ("coldest_hold_c_for_target", "Coldest hold for the target (°C)"),
+    ("largest_volume_ml_for_target", "Largest volume for the target (mL)"),
+    ("target_probability", "Target probability"),
 ])
 def test_labels_carry_the_unit_of_the_key(path, label):
     assert label_for(path) == label

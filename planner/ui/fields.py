@@ -42,6 +42,8 @@ UNIT_SUFFIXES: tuple[tuple[str, str], ...] = (
     ("_l", "L"),
     ("_mm", "mm"),
     ("_um", "µm"),
+    ("_nm", "nm"),
+    ("_kt", "kT"),  # an energy in units of the thermal energy k_B T
     ("_m", "m"),
     ("_c", "°C"),
     ("_k", "K"),
@@ -126,6 +128,7 @@ STEM_WORDS: dict[str, str] = {
     # report keys spell 0.5 K as 0p5k (a key holds no dot)
     "time_to_within_0p5k": "Time to within 0.5 K of the bath",
     "time_to_within_0p5k_range": "Time to within 0.5 K of the bath, over the h range",
+    "von_mises": "Von Mises stress", "barrier": "Nucleation barrier",
 }
 
 
@@ -162,6 +165,11 @@ def label_for(path: str) -> str:
         return f"{words} of {key} ({unit})"
     if key in CONCENTRATION_WORDS:
         return f"Concentration ({CONCENTRATION_WORDS[key]})"
+    if key.endswith("_for_target") and len(key) > len("_for_target"):
+        # "what would it take" keys carry their unit inside: coldest_hold_c_for_target
+        stem, unit = unit_of(key[: -len("_for_target")])
+        words = STEM_WORDS.get(stem) or stem.replace("_", " ").strip().capitalize()
+        return f"{words} for the target ({unit})" if unit else f"{words} for the target"
     stem, unit = unit_of(key)
     text = FIELD_TEXT.get(pattern_of(path), FieldText()).label
     if text is None:

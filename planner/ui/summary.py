@@ -170,7 +170,9 @@ def margins_table_html(rows: list[MarginRow]) -> str:
 
 
 def flags_html(report: dict[str, Any] | None) -> str:
-    flags = (report or {}).get("flags") or []
+    from planner.results import shown_flags
+
+    flags = shown_flags((report or {}).get("flags") or [])
     if not flags:
         return '<p class="cm-muted">No flags: every model was used inside its range.</p>'
     items = "".join(
