@@ -6,7 +6,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from planner.errors import InputError
+from planner.errors import ExtrapolationWarning, InputError
 from planner.protocol import load_protocol, parse_protocol
 from planner.results import to_jsonable
 from planner.sections import freezing as section
@@ -135,7 +135,10 @@ schedule:
     - {ramp_to_c: -80.0, rate_c_per_min: 1.0}
 """
     p = protocol(saline, ramp, "saline cooled without seeding")
-    ctx = context_for(p)
+    # cooled to -80 C, the exposed-interface prior is used past the supercooling its parameters come from
+    with pytest.warns(ExtrapolationWarning, match="deeper than the 0 to 20.5 K"):
+        ctx = context_for(p)
+    assert any(f.code == "extrapolated" for f in ctx["nucleation"].report.flags)  # said in the result too
     out = section.build(p, ctx)
     r = out.report
     liquidus_c = ctx["solution"].report.freezing_point_c

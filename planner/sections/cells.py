@@ -25,16 +25,18 @@ Margins (names of ``planner/data/policy.yaml``):
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from planner import cells as cellmodel
 from planner.errors import ModelRangeError
 from planner.protocol import CELSIUS_OFFSET, Protocol, Step
 from planner.results import Flag, Result
 from planner.schedule import segments
 from planner.sections import MarginValue, SectionOutput
+
+if TYPE_CHECKING:  # the cell model (and scipy.integrate) loads only for a protocol with cells
+    from planner import cells as cellmodel
 
 TRADEOFF_RATES_C_PER_MIN = (0.1, 0.3, 1.0, 3.0, 10.0, 30.0, 100.0)
 MAZUR_LOWEST_END = 233.15  # K: the Mazur run stops at -40 C unless the cell's nucleation temperature is colder
@@ -188,6 +190,8 @@ def build(protocol: Protocol, context: dict[str, SectionOutput]) -> SectionOutpu
     """
     if protocol.cells is None:
         return None
+    from planner import cells as cellmodel
+
     cells = protocol.cells
     cell = cellmodel.resolve_cell(cells)
     model = cellmodel.default_solution_model()
