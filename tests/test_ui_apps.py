@@ -687,3 +687,39 @@ def test_the_compare_map_runs_off_the_page_and_shows_progress(monkeypatch):
     app.wait()
     assert app.map_progress.layout.display == "none"
     assert "<svg" in app.map.value
+
+
+def test_a_refused_edit_marks_the_chart_stale_without_drawing_it_again(monkeypatch):
+    """The last valid result stays on show: its chart gains a stale note at once (no "Updating" note and
+    no second drawing of the same result), and loses it when the value is put right."""
+    import planner.ui.stepcharts as stepcharts
+    from planner.ui.planner_app import UPDATING, PlannerApp
+    from planner.ui.planner_model import PlannerModel
+    from planner.ui.stepcharts_data import STALE_NOTE
+
+    drawn = []
+    real = stepcharts.chart_for_step
+    monkeypatch.setattr(stepcharts, "chart_for_step", lambda name, snap: drawn.append(name) or real(name, snap))
+    app = PlannerApp(protocol=ROOT / "protocols" / f"{DEMO}.yaml", model=PlannerModel(inline=True))
+    view = app.step_views["sample"]
+    app.release_charts()
+    first = view.chart.value
+    assert "<svg" in first and STALE_NOTE not in first and drawn == ["freeze_map"]
+    box = [fv for fv in view.fields if fv.path == "sample.volume_ml"][0]
+    box.input.value = "-2"
+    assert app.model.stale and "sample.volume_ml" in box.error.value
+    assert STALE_NOTE in view.chart.value and UPDATING not in view.chart.value
+    assert view.chart.value.replace(STALE_NOTE, "") == first and drawn == ["freeze_map"]
+    box.input.value = "1.0"  # the demo's own volume: its result again
+    assert not app.model.stale and view.chart.value == first and drawn == ["freeze_map"]
+    box.input.value = "0.5"  # a new result is drawn
+    assert drawn == ["freeze_map", "freeze_map"] and view.chart.value != first
+
+
+def test_the_stale_note_goes_after_the_chart_and_before_its_note():
+    from planner.ui.stepcharts_data import STALE_NOTE, with_stale_note
+
+    text = '<div class="cm-chart"><svg></svg></div><div class="cm-chart cm-muted">a note</div>'
+    marked = with_stale_note(text, True)
+    assert marked == '<div class="cm-chart"><svg></svg></div>' + STALE_NOTE + '<div class="cm-chart cm-muted">a note</div>'
+    assert with_stale_note(marked, True) == marked and with_stale_note(marked, False) == text

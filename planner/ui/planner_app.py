@@ -203,6 +203,7 @@ class StepView:
         self.numbers = html_box("", "cm-numbers")
         self.chart = html_box("", "cm-chart-box cm-chart-" + spec.name)
         self.chart_revision = -1
+        self.chart_evaluation = None  # the result the chart on show was drawn from
         self.chart_worker = Worker(inline=app.model.worker.inline)
         self.include: w.Checkbox | None = None
         self.inputs = w.VBox()
@@ -293,10 +294,15 @@ class StepView:
             return
         if self.app.charts_held:
             return  # drawn once the page is up (PlannerApp.release_charts)
-        from planner.ui.stepcharts_data import snapshot
+        from planner.ui.stepcharts_data import snapshot, with_stale_note
 
         revision = model.result_revision
         self.chart_revision = revision
+        evaluation = model.evaluation
+        if evaluation is not None and evaluation is self.chart_evaluation:
+            # a refused edit leaves the last valid result in place: the chart only gains or loses its stale note
+            self.chart.value = with_stale_note(self.chart.value, bool(model.stale))
+            return
         snap = snapshot(model)
         if model.evaluation is not None:
             # the chart on show belongs to the previous result until the new one is drawn: say so
@@ -305,6 +311,11 @@ class StepView:
 
         def lost(exc: BaseException) -> None:
             self.chart_revision = -1
+            self.chart_evaluation = None
+
+        def drawn(text: str) -> None:
+            self.chart.value = text
+            self.chart_evaluation = evaluation
 
         def draw() -> str:
             if model.working:
@@ -317,8 +328,7 @@ class StepView:
 
             return chart_for_step(self.spec.chart, snap)
 
-        self.chart_worker.submit(draw,
-                                 lambda text: setattr(self.chart, "value", text), lost)
+        self.chart_worker.submit(draw, drawn, lost)
 
 
 class StepViews(dict):

@@ -17,7 +17,7 @@ import altair as alt
 import numpy as np
 
 from planner.protocol import CELSIUS_OFFSET
-from planner.ui.stepcharts_data import Snapshot, snapshot
+from planner.ui.stepcharts_data import Snapshot, snapshot, with_stale_note
 
 WIDTH, HEIGHT = 620, 240
 INK = "#1d1d1d"
@@ -446,8 +446,7 @@ def chart_for_step(name: str, model) -> str:
         return note_html(f"No chart ({type(exc).__name__}: {exc}).")
     if chart is None:
         return note_html(note)
-    stale = '<div class="cm-stale-note">Stale: drawn from the last valid result.</div>' if model.stale else ""
-    return chart_html(chart) + stale + (note_html(note) if note else "")
+    return with_stale_note(chart_html(chart) + (note_html(note) if note else ""), bool(model.stale))
 
 
 def overlay_chart(series: list[dict[str, Any]]) -> alt.Chart:

@@ -5,6 +5,18 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+STALE_NOTE = '<div class="cm-stale-note">Stale: drawn from the last valid result.</div>'
+
+
+def with_stale_note(chart_text: str, stale: bool) -> str:
+    """A drawn chart's HTML with the stale note put in or taken out (the chart itself is not redrawn)."""
+    body = chart_text.replace(STALE_NOTE, "")
+    if not stale:
+        return body
+    end = body.find("</svg></div>")
+    at = end + len("</svg></div>") if end >= 0 else len(body)
+    return body[:at] + STALE_NOTE + body[at:]
+
 
 @dataclass(frozen=True)
 class Snapshot:
