@@ -304,6 +304,7 @@ def test_archive_lists_opens_and_verifies_a_signed_record(signed):
     with pytest.raises(InputError, match="listed"):
         m.open_record("0" * 64)
     app = ArchiveApp(archive)
+    assert "<p>1 archived record copy. Chain head" in app.summary.value
     app.verify_button.click()
     assert "cm-verified" in app.result.value and done.record_hash in app.result.value
     assert "record (JSON" in app.downloads.value and "srcdoc=" in app.view.value

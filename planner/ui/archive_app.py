@@ -70,7 +70,8 @@ class ArchiveApp:
         rows = self.model.rows
         self.records.options = [(r.label, r.record_hash) for r in rows] or [("(no records yet)", "")]
         self.records.value = rows[-1].record_hash if rows else ""
-        self.summary.value = (f"<p>{len(rows)} archived record copies. Chain head "
+        copies = "1 archived record copy" if len(rows) == 1 else f"{len(rows)} archived record copies"
+        self.summary.value = (f"<p>{copies}. Chain head "
                               f"<code class='cm-archive-head'>{html.escape(self.model.head)}</code>: keep a copy "
                               "elsewhere to detect truncation later.</p>")
         self.result.value = self.downloads.value = self.view.value = ""
