@@ -71,9 +71,9 @@ class CalibrateApp:
             html_box(style_html()),
             html_box("<h2>coldmargin: calibrate ice nucleation from your assay</h2><div class='cm-links'>"
                      "<a href='./plan.ipynb'>back to the planner</a></div>"),
-            w.HBox([self.demo, self.open_demo]), self.upload, self.message, self.assay,
+            w.HBox([self.demo, self.open_demo, self.upload]), self.message, self.assay,
             w.HBox([self.fit_button, self.progress]), self.result,
-            html_box("<h3>Save</h3>"), self.folder, self.name, self.save_button, self.saved,
+            html_box("<h3>Save</h3>"), self.folder, self.name, w.HBox([self.save_button]), self.saved,
             html_box(planning_support_html(None)),
         ])
         add_classes(self.widget, "cm-app cm-calibrate")

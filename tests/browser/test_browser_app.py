@@ -238,3 +238,38 @@ def test_compare_two_scenarios(page, server, shot):
     shot(page, "compare-two-scenarios")
     assert _cut_text(page) == []  # projected in large type, every label and button still reads whole
     _only_local(page, server)
+
+
+def test_calibrate_from_an_uploaded_assay_and_save_it(page, server, shot):
+    """The calibrate page in the browser: an assay CSV sent through the page's own upload button, the fit
+    with its 90 % interval and both charts, then the calibration saved where the person says."""
+    from pathlib import Path
+
+    assay = Path(__file__).resolve().parents[2] / "protocols" / "assays" / "demo-saline-holds.csv"
+    page.goto(server.url("calibrate"))
+    page.locator(".cm-calibrate").wait_for(timeout=120_000)
+    with page.expect_file_chooser() as chooser:  # the upload button opens the browser's own file dialog
+        page.get_by_role("button", name=re.compile("Upload assay")).click()
+    chooser.value.set_files(str(assay))
+    page.locator(".cm-cal-assay", has_text="samples").wait_for()
+    text = page.locator(".cm-cal-assay").inner_text()
+    rows = [line for line in assay.read_text().splitlines()[1:] if line and not line.startswith("#")][1:]
+    assert f"{len(rows)} samples" in text and "-0.55 °C" in text  # the file's rows and its liquidus_c line
+    page.get_by_role("button", name="Fit", exact=True).click()
+    page.locator(".cm-cal-result .cm-cal-summary").wait_for(timeout=120_000)
+    result = page.locator(".cm-cal-result").inner_text()
+    assert "90 % interval" in result or "upper bound" in result
+    assert page.locator(".cm-cal-result svg").count() >= 1
+    folder = server.folder / "calibrations"
+    folder.mkdir(exist_ok=True)
+    page.get_by_label("Save in folder", exact=True).fill(str(folder))
+    page.get_by_label("Save in folder", exact=True).press("Enter")
+    page.get_by_label("Calibration name", exact=True).fill("browser-test")
+    page.get_by_label("Calibration name", exact=True).press("Enter")
+    page.get_by_role("button", name="Save calibration", exact=True).click()
+    page.locator(".cm-cal-saved .cm-cal-path").wait_for()
+    saved = Path(page.locator(".cm-cal-saved .cm-cal-path").inner_text())
+    assert saved.parent == folder and saved.is_file()
+    shot(page, "calibrate-fitted")
+    assert _cut_text(page) == []
+    _only_local(page, server)
