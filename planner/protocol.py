@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import functools
 import math
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -194,6 +195,96 @@ IH_III_TRIPLE_POINT_C = 251.165 - CELSIUS_OFFSET
 GEOMETRY_TOLERANCE = 0.02  # given dimensions and volume must agree to 2 %
 
 
+@dataclass(frozen=True)
+class Bound:
+    """The valid range of one number in a protocol file, in its key's own unit: [low, high], or
+    (low, high] when ``low_open``."""
+
+    low: float
+    high: float
+    low_open: bool = False
+
+    def words(self) -> str:
+        """The range as every refusal and every field hint states it."""
+        return _range_words(self.low, self.high, self.low_open)
+
+    def holds(self, x: float) -> bool:
+        return math.isfinite(x) and self.low <= x <= self.high and not (self.low_open and x == self.low)
+
+
+def _concentration_bounds() -> dict[str, Bound]:
+    # a concentration is judged against its agent's data by planner.solution; here only its sign and size
+    out = {}
+    for prefix in ("solution", "cells.loading[]", "cells.unloading[]"):
+        for unit in CONCENTRATION_UNITS:
+            out[f"{prefix}.cryoprotectants[].{unit}"] = Bound(0.0, 1e4, True)
+    return out
+
+
+# Every number a protocol file may hold, by key path ("[]": any list index, "*": any one key). The loader
+# checks each number against its entry, and the app states the same range beside the field. Conditional
+# limits (a rigid chamber's coldest temperature, a cavity at least the sample volume) are checked in the
+# loader's code and named in its messages.
+BOUNDS: dict[str, Bound] = {
+    # smallest sizes: a picolitre droplet, a micrometre (smaller numbers are typing errors, and their
+    # squares and cubes underflow)
+    "sample.volume_ml": Bound(1e-9, 5000.0),
+    "sample.diameter_mm": Bound(1e-3, 1000.0),
+    "sample.height_mm": Bound(1e-3, 1000.0),
+    "sample.thickness_mm": Bound(1e-3, 1000.0),
+    "container.cavity_ml": Bound(0.0, 5000.0, True),
+    "container.inner_diameter_mm": Bound(0.0, 2000.0, True),
+    "container.outer_diameter_mm": Bound(0.0, 4000.0, True),
+    "container.trapped_gas_ml": Bound(0.0, 5000.0),
+    "container.cavity_compliance_per_gpa": Bound(0.0, 100.0),
+    **_concentration_bounds(),
+    "solution.critical_cooling_rate_c_per_min": Bound(0.0, 1e7, True),
+    "solution.critical_warming_rate_c_per_min": Bound(0.0, 1e7, True),
+    "schedule.start_c": Bound(COLDEST_C, WARMEST_C),
+    "schedule.steps[].ramp_to_c": Bound(COLDEST_C, WARMEST_C),
+    "schedule.steps[].rate_c_per_min": Bound(0.0, 1e6, True),
+    "schedule.steps[].hold_h": Bound(0.0, MAX_SCHEDULE_H, True),
+    "schedule.steps[].hold_min": Bound(0.0, MAX_SCHEDULE_H * 60, True),
+    "schedule.steps[].plunge_to_c": Bound(COLDEST_C, WARMEST_C),
+    "schedule.steps[].h_w_per_m2_k": Bound(0.0, 1e5, True),
+    "schedule.steps[].seed_ice.at_c": Bound(-40.0, 0.0),
+    "environment.h_w_per_m2_k": Bound(0.0, 1e5, True),
+    "cells.radius_um": Bound(0.0, 1000.0, True),
+    "cells.volume_um3": Bound(0.0, 5e9, True),
+    "cells.inactive_fraction": Bound(0.0, 0.95),
+    "cells.lp_um_per_min_atm": Bound(0.0, 100.0, True),
+    "cells.lp_activation_kj_per_mol": Bound(0.0, 300.0),
+    "cells.min_volume_fraction": Bound(0.0, 1.0, True),
+    "cells.max_volume_fraction": Bound(1.0, 10.0),
+    "cells.permeability_um_per_s.*": Bound(0.0, 1e3, True),
+    "cells.permeability_activation_kj_per_mol.*": Bound(0.0, 300.0),
+    "cells.loading[].temperature_c": Bound(-20.0, 40.0),
+    "cells.loading[].duration_min": Bound(0.0, 24 * 60.0, True),
+    "cells.unloading[].temperature_c": Bound(-20.0, 40.0),
+    "cells.unloading[].duration_min": Bound(0.0, 24 * 60.0, True),
+    "policy.target_freeze_probability": Bound(0.0, 0.5, True),
+    "policy.margins.*.watch": Bound(-1e12, 1e12),
+    "policy.margins.*.stop": Bound(-1e12, 1e12),
+}
+
+
+def bound_for(path: str) -> Bound | None:
+    """The valid range of the number at a key path (``schedule.steps[2].hold_h``), or None if it holds none.
+
+    An exact pattern wins over one with a ``*`` segment.
+    """
+    pattern = re.sub(r"\[\d+\]", "[]", path)
+    if pattern in BOUNDS:
+        return BOUNDS[pattern]
+    parts = pattern.split(".")
+    for key, bound in BOUNDS.items():
+        if "*" in key:
+            kparts = key.split(".")
+            if len(kparts) == len(parts) and all(k in ("*", q) for k, q in zip(kparts, parts, strict=True)):
+                return bound
+    return None
+
+
 def _data_keys(filename: str) -> list[str]:
     """Top-level keys of a packaged data file (the words a protocol may use for it)."""
     return list(_packaged_keys(filename))
@@ -239,19 +330,22 @@ class _Section:
     def has(self, key: str) -> bool:
         return key in self.node and self.node[key] is not None
 
-    def number(self, key: str, low: float, high: float, *, low_open: bool = False, default=None) -> float | None:
-        """A number in [low, high] (or (low, high] with ``low_open``) in the key's own unit."""
+    def number(self, key: str, *, default=None) -> float | None:
+        """A number in the key's own unit, inside its range in :data:`BOUNDS`."""
         if not self.has(key):
             return default
+        bound = bound_for(self.at(key))
+        if bound is None:  # a key the loader reads as a number must have a range: a fault of this module
+            raise KeyError(f"no range in BOUNDS for {self.at(key)}")
         value = self.node[key]
         if not _is_number(value):
-            raise InputError(self.at(key), _shown(value), _range_words(low, high, low_open))
+            raise InputError(self.at(key), _shown(value), bound.words())
         try:
             x = float(value)
         except OverflowError:
-            raise InputError(self.at(key), _shown(value), _range_words(low, high, low_open)) from None
-        if not math.isfinite(x) or x > high or x < low or (low_open and x == low):
-            raise InputError(self.at(key), value, _range_words(low, high, low_open))
+            raise InputError(self.at(key), _shown(value), bound.words()) from None
+        if not bound.holds(x):
+            raise InputError(self.at(key), value, bound.words())
         return x
 
     def word(self, key: str, choices, default: str | None = None) -> str | None:
@@ -383,13 +477,11 @@ def build_protocol(doc: Any, base_dir: Path | None = None) -> Protocol:
 def _sample(node: Any) -> Sample:
     s = _Section(node, "sample", ("volume_ml", "geometry", "diameter_mm", "height_mm", "thickness_mm",
                                   "origin", "description"), ("volume_ml", "geometry"))
-    # Smallest sizes: a picolitre droplet, a micrometre (smaller numbers are typing errors, and their
-    # squares and cubes underflow).
-    volume = s.number("volume_ml", 1e-9, 5000.0) * 1e-6
+    volume = s.number("volume_ml") * 1e-6  # its range, and why: BOUNDS
     geometry = s.word("geometry", GEOMETRIES)
-    diameter = s.number("diameter_mm", 1e-3, 1000.0)
-    height = s.number("height_mm", 1e-3, 1000.0)
-    thickness = s.number("thickness_mm", 1e-3, 1000.0)
+    diameter = s.number("diameter_mm")
+    height = s.number("height_mm")
+    thickness = s.number("thickness_mm")
     origin = s.word("origin", ORIGINS)
     description = s.text("description", 2000)
     d = diameter * 1e-3 if diameter is not None else None
@@ -447,21 +539,21 @@ def _container(node: Any, sample: Sample) -> Container:
     for key in ("cavity_ml", "inner_diameter_mm", "outer_diameter_mm", "material"):
         if not c.has(key):
             raise InputError(f"container.{key}", "missing", "required for a rigid chamber")
-    cavity = c.number("cavity_ml", 0.0, 5000.0, low_open=True) * 1e-6
+    cavity = c.number("cavity_ml") * 1e-6
     if cavity < sample.volume * (1 - 1e-9):
         raise InputError("container.cavity_ml", node["cavity_ml"],
                          f"at least the sample volume, {sample.volume * 1e6:g} mL")
-    inner = c.number("inner_diameter_mm", 0.0, 2000.0, low_open=True) * 1e-3
-    outer = c.number("outer_diameter_mm", 0.0, 4000.0, low_open=True) * 1e-3
+    inner = c.number("inner_diameter_mm") * 1e-3
+    outer = c.number("outer_diameter_mm") * 1e-3
     if outer <= inner:
         raise InputError("container.outer_diameter_mm", node["outer_diameter_mm"],
                          f"larger than inner_diameter_mm ({inner * 1e3:g})")
     material = c.word("material", _data_keys("materials.yaml"))
-    gas = c.number("trapped_gas_ml", 0.0, 5000.0, default=0.0) * 1e-6
+    gas = c.number("trapped_gas_ml", default=0.0) * 1e-6
     if gas >= cavity:
         raise InputError("container.trapped_gas_ml", node["trapped_gas_ml"],
                          f"less than the cavity, {cavity * 1e6:g} mL")
-    compliance = c.number("cavity_compliance_per_gpa", 0.0, 100.0)
+    compliance = c.number("cavity_compliance_per_gpa")
     interface = c.word("interface", INTERFACES, "exposed" if gas > 0 else "sealed")
     return Container(
         "rigid", interface, c.word("shape", CHAMBER_SHAPES, "cylinder"), cavity, inner, outer, material, gas,
@@ -483,21 +575,21 @@ def _solution(node: Any, path: str) -> Solution:
         agent = item["agent"]
         if not isinstance(agent, str):
             raise InputError(f"{at}.agent", _shown(agent), "an agent name")
-        value = e.number(units[0], 0.0, 1e4, low_open=True)
+        value = e.number(units[0])
         entries.append(Cryoprotectant(agent, units[0], value))
     if len({e.agent for e in entries}) != len(entries):
         raise InputError(f"{path}.cryoprotectants", [e.agent for e in entries], "each agent once")
     from planner.solution import composition
 
     composition(carrier, [(e.agent, e.unit, e.value) for e in entries], field=path)  # raises on bad values
-    ccr = s.number("critical_cooling_rate_c_per_min", 0.0, 1e7, low_open=True)
-    cwr = s.number("critical_warming_rate_c_per_min", 0.0, 1e7, low_open=True)
+    ccr = s.number("critical_cooling_rate_c_per_min")
+    cwr = s.number("critical_warming_rate_c_per_min")
     return Solution(carrier, tuple(entries), None if ccr is None else ccr / 60.0, None if cwr is None else cwr / 60.0)
 
 
 def _schedule(node: Any, container: Container) -> Schedule:
     s = _Section(node, "schedule", ("start_c", "steps"), ("start_c", "steps"))
-    start_c = s.number("start_c", COLDEST_C, WARMEST_C)
+    start_c = s.number("start_c")
     if container.kind == "rigid" and start_c < IH_III_TRIPLE_POINT_C:
         raise InputError("schedule.start_c", start_c, _rigid_coldest())
     steps: list[Step] = []
@@ -515,8 +607,8 @@ def _schedule(node: Any, container: Container) -> Schedule:
         kind = kinds[0]
         if kind == "ramp_to_c":
             e = _Section(item, at, ("ramp_to_c", "rate_c_per_min"), ("ramp_to_c", "rate_c_per_min"))
-            target_c = e.number("ramp_to_c", COLDEST_C, WARMEST_C)
-            rate = e.number("rate_c_per_min", 0.0, 1e6, low_open=True)
+            target_c = e.number("ramp_to_c")
+            rate = e.number("rate_c_per_min")
             if target_c == current_c:
                 raise InputError(f"{at}.ramp_to_c", target_c,
                                  f"a temperature other than the current {current_c:g} C (use hold_h to hold)")
@@ -526,9 +618,9 @@ def _schedule(node: Any, container: Container) -> Schedule:
         elif kind in ("hold_h", "hold_min"):
             e = _Section(item, at, (kind,), (kind,))
             if kind == "hold_h":
-                duration = e.number("hold_h", 0.0, MAX_SCHEDULE_H, low_open=True) * 3600.0
+                duration = e.number("hold_h") * 3600.0
             else:
-                duration = e.number("hold_min", 0.0, MAX_SCHEDULE_H * 60, low_open=True) * 60.0
+                duration = e.number("hold_min") * 60.0
             if not steps:
                 raise InputError(f"{at}.{kind}", item[kind],
                                  "a hold after a ramp or plunge that brings the sample to its temperature "
@@ -537,9 +629,9 @@ def _schedule(node: Any, container: Container) -> Schedule:
             step = Step(i, "hold", None, None, duration)
         elif kind == "plunge_to_c":
             e = _Section(item, at, ("plunge_to_c", "heat_transfer", "h_w_per_m2_k"), ("plunge_to_c",))
-            target_c = e.number("plunge_to_c", COLDEST_C, WARMEST_C)
+            target_c = e.number("plunge_to_c")
             preset = e.word("heat_transfer", _data_keys("heat_transfer.yaml"))
-            h = e.number("h_w_per_m2_k", 0.0, 1e5, low_open=True)
+            h = e.number("h_w_per_m2_k")
             if preset is not None and h is not None:
                 raise InputError(f"{at}.h_w_per_m2_k", h, "either heat_transfer or h_w_per_m2_k, not both")
             step = Step(i, "plunge", target_c + CELSIUS_OFFSET, None, None, preset, h)
@@ -547,7 +639,7 @@ def _schedule(node: Any, container: Container) -> Schedule:
         else:
             e = _Section(item, at, ("seed_ice",), ("seed_ice",))
             seed = _Section(item["seed_ice"], f"{at}.seed_ice", ("at_c",), ("at_c",))
-            at_c = seed.number("at_c", -40.0, 0.0)
+            at_c = seed.number("at_c")
             step = Step(i, "seed", at_c + CELSIUS_OFFSET)
         if container.kind == "rigid" and current_c < IH_III_TRIPLE_POINT_C:
             key = "plunge_to_c" if kind == "plunge_to_c" else "ramp_to_c"
@@ -569,7 +661,7 @@ def _environment(node: Any) -> Environment:
         return Environment(defaulted=True)
     e = _Section(node, "environment", ("heat_transfer", "h_w_per_m2_k"))
     preset = e.word("heat_transfer", _data_keys("heat_transfer.yaml"))
-    h = e.number("h_w_per_m2_k", 0.0, 1e5, low_open=True)
+    h = e.number("h_w_per_m2_k")
     if (preset is None) == (h is None):
         raise InputError("environment", _shown(node), "exactly one of heat_transfer or h_w_per_m2_k")
     return Environment(preset, h, False)
@@ -598,15 +690,15 @@ def _cells(node: Any) -> Cells:
             "min_volume_fraction", "max_volume_fraction", "loading", "unloading")
     c = _Section(node, "cells", keys)
     preset = c.word("preset", _data_keys("cells.yaml"))
-    radius = c.number("radius_um", 0.0, 1000.0, low_open=True)
-    volume = c.number("volume_um3", 0.0, 5e9, low_open=True)
+    radius = c.number("radius_um")
+    volume = c.number("volume_um3")
     if radius is not None and volume is not None:
         raise InputError("cells.volume_um3", volume, "either radius_um or volume_um3, not both")
-    inactive = c.number("inactive_fraction", 0.0, 0.95)
-    lp = c.number("lp_um_per_min_atm", 0.0, 100.0, low_open=True)
-    lp_ea = c.number("lp_activation_kj_per_mol", 0.0, 300.0)
-    vmin = c.number("min_volume_fraction", 0.0, 1.0, low_open=True)
-    vmax = c.number("max_volume_fraction", 1.0, 10.0)
+    inactive = c.number("inactive_fraction")
+    lp = c.number("lp_um_per_min_atm")
+    lp_ea = c.number("lp_activation_kj_per_mol")
+    vmin = c.number("min_volume_fraction")
+    vmax = c.number("max_volume_fraction")
     if vmin is not None and vmin >= 1.0:
         raise InputError("cells.min_volume_fraction", vmin, "a fraction below 1 (of the isotonic volume)")
     perm: dict[str, float] = {}
@@ -614,15 +706,15 @@ def _cells(node: Any) -> Cells:
     from planner.solution import known_agents
 
     agents = known_agents()
-    for key, target, high, scale in (("permeability_um_per_s", perm, 1e3, 1e-6),
-                                     ("permeability_activation_kj_per_mol", perm_ea, 300.0, 1e3)):
+    for key, target, scale in (("permeability_um_per_s", perm, 1e-6),
+                               ("permeability_activation_kj_per_mol", perm_ea, 1e3)):
         if c.has(key):
             sub = node[key]
             if not isinstance(sub, dict):
                 raise InputError(f"cells.{key}", _shown(sub), "a mapping of agent: value")
             p = _Section(sub, f"cells.{key}", tuple(agents))
             for agent in sub:
-                target[agent] = p.number(agent, 0.0, high, low_open=(key == "permeability_um_per_s")) * scale
+                target[agent] = p.number(agent) * scale
     steps = {}
     for which in ("loading", "unloading"):
         out = []
@@ -631,8 +723,8 @@ def _cells(node: Any) -> Cells:
             st = _Section(item, at, ("carrier", "cryoprotectants", "temperature_c", "duration_min"),
                           ("carrier", "temperature_c", "duration_min"))
             sol = _solution({k: item[k] for k in ("carrier", "cryoprotectants") if k in item}, at)
-            temp = st.number("temperature_c", -20.0, 40.0) + CELSIUS_OFFSET
-            dur = st.number("duration_min", 0.0, 24 * 60.0, low_open=True) * 60.0
+            temp = st.number("temperature_c") + CELSIUS_OFFSET
+            dur = st.number("duration_min") * 60.0
             out.append(CellStep(i, sol, temp, dur))
         steps[which] = tuple(out)
     return Cells(
@@ -659,7 +751,7 @@ def _policy(node: Any) -> Policy:
     if node is None:
         return Policy()
     p = _Section(node, "policy", ("margins", "target_freeze_probability"))
-    target = p.number("target_freeze_probability", 0.0, 0.5, low_open=True, default=0.01)
+    target = p.number("target_freeze_probability", default=0.01)
     margins: dict[str, dict[str, float]] = {}
     if p.has("margins"):
         sub = node["margins"]
@@ -667,6 +759,6 @@ def _policy(node: Any) -> Policy:
         m = _Section(sub, "policy.margins", tuple(names))
         for name in sub:
             t = _Section(sub[name], f"policy.margins.{name}", ("watch", "stop"), ("watch", "stop"))
-            margins[name] = {"watch": t.number("watch", -1e12, 1e12), "stop": t.number("stop", -1e12, 1e12)}
+            margins[name] = {"watch": t.number("watch"), "stop": t.number("stop")}
         del m
     return Policy(margins, target)

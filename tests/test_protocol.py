@@ -213,3 +213,68 @@ def test_any_text_loads_or_raises_our_error(text):
         parse_protocol(text)
     except PlannerError:
         pass
+
+
+def _joined(path) -> str:
+    out = ""
+    for k in path:
+        out += f"[{k}]" if isinstance(k, int) else (f".{k}" if out else str(k))
+    return out
+
+
+def _number_leaves():
+    """(demo, key path tuple, value) for every number the invented demo protocols hold."""
+    for demo in sorted((ROOT / "protocols").glob("*.yaml")):
+        doc = yaml.safe_load(demo.read_text())
+        for path in _paths(doc):
+            node = doc
+            for k in path:
+                node = node[k]
+            if path and isinstance(node, (int, float)) and not isinstance(node, bool):
+                yield demo.name, path, node
+
+
+NUMBER_LEAVES = list(_number_leaves())
+
+
+def test_the_demos_hold_numbers_of_every_section():
+    """The range test below covers numbers of the sample, container, solution, schedule and cells."""
+    assert {p[0] for _, p, _ in NUMBER_LEAVES} >= {"sample", "container", "solution", "schedule", "cells"}
+
+
+@pytest.mark.parametrize(("demo", "path", "value"), NUMBER_LEAVES,
+                         ids=[f"{d}:{_joined(p)}" for d, p, _ in NUMBER_LEAVES])
+def test_every_number_has_its_range_as_data_and_the_loader_refuses_past_it(demo, path, value):
+    """Each number of each demo lies inside its range in BOUNDS; just past either end the loader refuses
+    it at that key, in the words of that range (the words the app's field hint shows)."""
+    import copy
+
+    from planner.protocol import bound_for
+
+    field = _joined(path)
+    bound = bound_for(field)
+    assert bound is not None, field
+    assert bound.holds(float(value)), (field, value)
+    doc = yaml.safe_load((ROOT / "protocols" / demo).read_text())
+    for past in (bound.high * 2 + 1, bound.low if bound.low_open else bound.low - 1):
+        edited_doc = copy.deepcopy(doc)
+        node = edited_doc
+        for k in path[:-1]:
+            node = node[k]
+        node[path[-1]] = past
+        with pytest.raises(InputError) as err:
+            parse_protocol(yaml.safe_dump(edited_doc), base_dir=ROOT / "protocols")
+        assert err.value.field == field and err.value.allowed == bound.words(), (past, str(err.value))
+
+
+def test_every_key_the_loader_reads_as_a_number_has_a_range():
+    """A key read with ``number("...")`` but missing from BOUNDS would stop the loader with a KeyError
+    instead of a refusal naming the key: every such key ends some BOUNDS pattern."""
+    import planner.protocol as protocol
+    from planner.protocol import BOUNDS
+
+    source = Path(protocol.__file__).read_text()
+    keys = set(re.findall(r'\.number\("([a-z_0-9]+)"', source))
+    assert len(keys) >= 30
+    last = {pattern.rsplit(".", 1)[-1] for pattern in BOUNDS}
+    assert keys - last == set()

@@ -143,13 +143,20 @@ def test_unit_suffixes_and_css_names():
     (DEMO, "schedule.steps[1].hold_h", 17521.0),
     ("slow-freeze-dmso", "schedule.steps[1].hold_min", 0.0),
     ("slow-freeze-dmso", "schedule.steps[5].plunge_to_c", -200.0),
+    (DEMO, "sample.volume_ml", 6000.0),
+    (DEMO, "sample.diameter_mm", 0.0),
+    ("rigid-chamber-hold", "container.cavity_ml", 0.0),
+    ("rigid-chamber-hold", "container.outer_diameter_mm", 5000.0),
+    (DEMO, "solution.cryoprotectants[0].mass_percent", 0.0),
+    ("slow-freeze-cells-loading", "cells.loading[0].temperature_c", 41.0),
+    ("slow-freeze-cells-loading", "cells.min_volume_fraction", 0.0),
 ])
 def test_a_fields_hint_states_the_range_the_loader_enforces(demo, path, bad):
     from planner.ui.fields import hint_for, range_for
 
     m = PlannerModel(evaluate=stand_in_evaluate(), inline=True)
     m.load_demo(demo)
-    assert m.current and hint_for(path).startswith("valid: ")
+    assert m.current and "valid: " in hint_for(path)
     m.set_value(path, bad)
     message = m.field_errors[path]  # the loader's own refusal, as the field shows it
     allowed = message.split("allowed: ", 1)[1]
@@ -176,8 +183,8 @@ def test_range_hints_keep_the_words_and_leave_the_labels_alone():
     assert [label_for(p) for p in ("schedule.start_c", "schedule.steps[1].hold_h", "schedule.steps[1].hold_min",
                                    "schedule.steps[2].plunge_to_c")] == [
         "Start temperature (°C)", "Hold for (h)", "Hold for (min)", "Plunge into bath at (°C)"]
-    assert hint_for("sample.volume_ml") == "volume of the sample body"  # no range kept as data for it
-    assert hint_for("environment.heat_transfer") == "how heat leaves the sample"
+    assert hint_for("sample.volume_ml") == "volume of the sample body; valid: a number from 1e-09 to 5000"
+    assert hint_for("environment.heat_transfer") == "how heat leaves the sample"  # a word, not a number
 
 
 def test_number_formatting_for_the_screen():

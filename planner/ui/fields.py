@@ -182,28 +182,29 @@ def choices_for(path: str) -> tuple[str, ...]:
 
 
 def loader_ranges() -> dict[str, str]:
-    """Valid ranges, in the loader's own words, of the keys whose bounds :mod:`planner.protocol` keeps as
-    data (its module constants); the bounds of other keys are written only in the loader's checks.
-
-    The lower bound of a hold ("above 0") is the one part not read from there: the loader writes it as a
-    literal. ``tests/test_ui_planner.py`` compares every range here with the loader's own refusal.
-    """
+    """Valid ranges, in the loader's own words, of every number a protocol holds (by key pattern), read
+    from :data:`planner.protocol.BOUNDS`; a rigid chamber's coldest temperature is added to the three
+    temperatures of the schedule. ``tests/test_ui_planner.py`` compares each range with the loader's own
+    refusal."""
     from planner import protocol as p
 
-    temperature = p._range_words(p.COLDEST_C, p.WARMEST_C, False)
     rigid = f"; in a rigid chamber no colder than {p.IH_III_TRIPLE_POINT_C:.3f}"
-    return {
-        "schedule.start_c": temperature + rigid,
-        "schedule.steps[].ramp_to_c": temperature + rigid,
-        "schedule.steps[].plunge_to_c": temperature + rigid,
-        "schedule.steps[].hold_h": p._range_words(0.0, p.MAX_SCHEDULE_H, True),
-        "schedule.steps[].hold_min": p._range_words(0.0, p.MAX_SCHEDULE_H * 60, True),
-    }
+    out = {key: bound.words() for key, bound in p.BOUNDS.items()}
+    for key in ("schedule.start_c", "schedule.steps[].ramp_to_c", "schedule.steps[].plunge_to_c"):
+        out[key] += rigid
+    return out
 
 
 def range_for(path: str) -> str:
-    """The valid range of the key at ``path`` as the loader states it, or "" where it keeps none as data."""
-    return loader_ranges().get(pattern_of(path), "")
+    """The valid range of the key at ``path`` as the loader states it, or "" for a key that is not a number."""
+    from planner import protocol as p
+
+    ranges = loader_ranges()
+    pattern = pattern_of(path)
+    if pattern in ranges:
+        return ranges[pattern]
+    bound = p.bound_for(path)
+    return bound.words() if bound is not None else ""
 
 
 def hint_for(path: str) -> str:
