@@ -664,3 +664,15 @@ def test_a_page_starts_with_the_first_step_only_and_builds_the_others_when_shown
     app.steps_bar.value = "review"
     assert app._review is not None and app.body.children[0] is app.review.box
     assert app._sign is None
+
+
+def test_a_second_agent_in_a_bath_is_chosen_from_the_same_list_as_the_first():
+    from planner.ui import steps as registry
+
+    spec = [i for i in registry.step("cells").items if isinstance(i, registry.Rows) and i.path == "cells.unloading"][0]
+    row = {"carrier": "isotonic-saline", "temperature_c": 22.0, "duration_min": 5,
+           "cryoprotectants": [{"agent": "glycerol", "molal": 0.66}, {"agent": "trehalose", "molal": 0.2}]}
+    fields = {f.path: f for f in registry.row_fields(spec, row)}
+    second = fields["cryoprotectants[1].agent"]
+    assert second.kind == "choice" and {"trehalose", "glycerol"} <= set(second.options())
+    assert fields["cryoprotectants[1].molal"].kind == "number"

@@ -158,7 +158,7 @@ class RowsView:
         else:
             add = button(f"Add {self.spec.kinds[0].name}", "cm-add " + css_name(self.spec.path + ".add"))
             add.on_click(lambda _b: self.app.edit(lambda: self._add(None)))
-            children.append(add)
+            children.append(w.HBox([add]))  # its own width, not the page's
         self.box.children = children
         self.refresh_state()
 

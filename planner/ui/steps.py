@@ -286,7 +286,13 @@ def row_fields(rows: Rows, row: Any) -> tuple[Field, ...]:
 
         for path, _ in Draft(row).leaves():
             if path not in have and path.split(".")[0] not in rows.unit_keys:
-                known.append(Field(path, "text" if not _numberish(path) else "number"))
+                last = path.rsplit(".", 1)[-1]
+                if last == "agent":  # a second agent of a bath: the same list as the first
+                    known.append(Field(path, "choice", choices_from=agent_names))
+                elif last == "carrier":
+                    known.append(Field(path, "choice", ("water", "isotonic-saline")))
+                else:
+                    known.append(Field(path, "text" if not _numberish(path) else "number"))
                 have.add(path)
     return tuple(known)
 

@@ -134,6 +134,22 @@ def test_the_rigid_demo_shows_its_chamber_chart(plan, server, shot):
     _only_local(plan, server)
 
 
+def test_the_cells_demo_shows_cell_volume_with_its_tolerance_band(plan, server, shot):
+    """The Cells step of the invented loading demo: its rows, and the volume chart with both limits."""
+    _open_plan(plan, server, "slow-freeze-cells-loading")
+    plan.get_by_role("button", name="Cells", exact=True).click()
+    assert plan.get_by_label("Include cells in this protocol").is_checked()
+    chart = plan.locator(".cm-step-cells .cm-chart-box")
+    chart.locator("svg").first.wait_for(timeout=60_000)
+    plan.locator(".cm-step-cells .cm-chart-updating").wait_for(state="detached")
+    text = chart.text_content()
+    assert "Cell volume during loading and unloading" in text
+    assert "smallest tolerated" in text and "largest tolerated" in text, text[:400]
+    assert _cut_text(plan) == []
+    shot(plan, "plan-cells-demo")
+    _only_local(plan, server)
+
+
 def test_the_other_pages_open_from_the_plan(plan, server, shot):
     """The plan's links to the other pages work with the sign-in the plan's address gave."""
     with plan.context.expect_page() as opened:
