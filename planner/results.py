@@ -43,23 +43,23 @@ def shown_flags(flags: list[dict[str, Any]]) -> list[dict[str, Any]]:
     ("solution, chamber: ..."), in the order they first appear. Nothing is dropped: every section that
     raised the flag is named. The report itself keeps every flag as raised.
     """
-    merged: dict[tuple[str, str, str], dict[str, Any]] = {}
-    sections: dict[tuple[str, str, str], list[str]] = {}
     out: list[dict[str, Any]] = []
+    seen: dict[tuple[str, str, str], tuple[dict[str, Any], list[str]]] = {}
     for f in flags:
-        message = str(f.get("message", ""))
-        m = _SECTION_PREFIX.fullmatch(message)
-        section, words = (m.group(1), m.group(2)) if m else ("", message)
-        key = (str(f.get("code", "")), str(f.get("source") or ""), words)
-        if key in merged and section and sections[key]:
-            if section not in sections[key]:
-                sections[key].append(section)
-                merged[key]["message"] = f"{', '.join(sections[key])}: {words}"
-            continue
         entry = dict(f)
-        if key in merged:  # the same words with no section prefix: a separate entry keeps it exact
-            key = (*key[:2], f"{words}\0{len(out)}")
-        merged[key], sections[key] = entry, [section] if section else []
+        m = _SECTION_PREFIX.fullmatch(str(f.get("message", "")))
+        if m is None:  # no section to name: shown as raised
+            out.append(entry)
+            continue
+        section, words = m.groups()
+        key = (str(f.get("code", "")), str(f.get("source") or ""), words)
+        if key in seen:
+            first, sections = seen[key]
+            if section not in sections:
+                sections.append(section)
+                first["message"] = f"{', '.join(sections)}: {words}"
+            continue
+        seen[key] = (entry, [section])
         out.append(entry)
     return out
 

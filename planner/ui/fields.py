@@ -181,30 +181,22 @@ def choices_for(path: str) -> tuple[str, ...]:
     return FIELD_TEXT.get(pattern_of(path), FieldText()).choices
 
 
-def loader_ranges() -> dict[str, str]:
-    """Valid ranges, in the loader's own words, of every number a protocol holds (by key pattern), read
-    from :data:`planner.protocol.BOUNDS`; a rigid chamber's coldest temperature is added to the three
-    temperatures of the schedule. ``tests/test_ui_planner.py`` compares each range with the loader's own
-    refusal."""
-    from planner import protocol as p
-
-    rigid = f"; in a rigid chamber no colder than {p.IH_III_TRIPLE_POINT_C:.3f}"
-    out = {key: bound.words() for key, bound in p.BOUNDS.items()}
-    for key in ("schedule.start_c", "schedule.steps[].ramp_to_c", "schedule.steps[].plunge_to_c"):
-        out[key] += rigid
-    return out
+# the schedule's temperatures also have a rigid chamber's coldest limit, checked in the loader's code
+_RIGID_LIMITED = ("schedule.start_c", "schedule.steps[].ramp_to_c", "schedule.steps[].plunge_to_c")
 
 
 def range_for(path: str) -> str:
-    """The valid range of the key at ``path`` as the loader states it, or "" for a key that is not a number."""
+    """The valid range of the number at ``path`` in the loader's own words (from
+    :data:`planner.protocol.BOUNDS`), or "" for a key that is not a number. ``tests/test_ui_planner.py``
+    compares it with the loader's own refusal."""
     from planner import protocol as p
 
-    ranges = loader_ranges()
-    pattern = pattern_of(path)
-    if pattern in ranges:
-        return ranges[pattern]
     bound = p.bound_for(path)
-    return bound.words() if bound is not None else ""
+    if bound is None:
+        return ""
+    if pattern_of(path) in _RIGID_LIMITED:
+        return f"{bound.words()}; in a rigid chamber no colder than {p.IH_III_TRIPLE_POINT_C:.3f}"
+    return bound.words()
 
 
 def hint_for(path: str) -> str:
