@@ -47,6 +47,16 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
     0 of 10 in two runs with the chart held and nbclient's 4 s output wait); ``--pool 10``: kernels ready
     20.6 s after start, all ten interactive 48.8 s after launch, 218 MB per kernel, 18.9 GB of memory
     still available.
+- 2026-12-02, third session, a quiet machine (load average 0.2-1.4 at the start of each run), rigid demo:
+  - cold start, medians of 7: no pool 3.1 s to the first interactive step (assessed 3.1 s, chart 3.8-3.9
+    s); pool of one, page asked for at once 3.1-3.5 s. A page on a ready pool of two: 1.3-1.6 s; the pool
+    is ready (voila's log says it is filled and the kernels have gone quiet) 6.1 s after start.
+  - round trips in the page / seen by the driver, medians over 20: open vial 68 / 107, 82-91 / 125-131,
+    53 / 91 ms; rigid chamber 119-120 / 154-159, 136-145 / 187-188, 53-60 / 89-107 ms. Kernel memory
+    287-318 MB (open vial), 367-398 MB (rigid chamber).
+  - ten viewers at once: no pool, all ten interactive after 53.8 s and 54.7 s (about 250 MB per kernel,
+    at least 19.3 GB available); ``--pool 10``: kernels ready 14.5 s after start, all ten interactive
+    29.8 s after launch, 219 MB per kernel, 18.7 GB still available.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
