@@ -260,7 +260,9 @@ def run_app(args: argparse.Namespace) -> int:
         print(f"coldmargin: port {cfg.port} is taken; using {port}", file=sys.stderr)
     print("coldmargin planner – open this address in a browser on this computer:")
     print(f"  {page_url(port, cfg.token, cfg.notebook)}")
-    print("Other pages: " + ", ".join(page_url(port, cfg.token, n).split("?")[0] for n in NOTEBOOKS if n != cfg.notebook))
+    # the token is printed once: the address above signs the browser in, and the other pages then open
+    print("Other pages: " + ", ".join(page_url(port, cfg.token, n).split("?")[0] for n in NOTEBOOKS if n != cfg.notebook)
+          + " (open the address above first: it signs this browser in; the planner links to them too)")
     print("The token in the address is the key to this server: share it only with people who may use it.")
     print("Planning support only: a margin is never a guarantee; local codes and biosafety rules decide.")
     print("Stop with Ctrl+C.", flush=True)
