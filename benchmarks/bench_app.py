@@ -12,7 +12,8 @@
 
 Run: ``.venv/bin/python benchmarks/bench_app.py [--quick] [--no-viewers]``; only the ten viewers:
 ``--viewers-only [--viewers-pool 10]``; cold starts only: ``--cold-only [--cold-runs N] [--cold-pools 0,1]``.
-``BENCH_VOILA_LOG=1`` prints each server's voila warnings (and keeps its log in /tmp) when it stops.
+``BENCH_VOILA_LOG=1`` prints each server's voila warnings (and keeps its log in /tmp) when it stops;
+``BENCH_NO_RENDERER=1`` starts the servers without the shared chart renderer (each kernel draws its own).
 
 Figures on this machine (2 cores, quiet: load average under 2 at each start), 2026-12-02:
 
@@ -57,6 +58,11 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
   - ten viewers at once: no pool, all ten interactive after 53.8 s and 54.7 s (about 250 MB per kernel,
     at least 19.3 GB available); ``--pool 10``: kernels ready 14.5 s after start, all ten interactive
     29.8 s after launch, 219 MB per kernel, 18.7 GB still available.
+  - with the shared chart renderer (``BENCH_NO_RENDERER=1`` runs without it), interleaved medians of 3:
+    cold start interactive 3.2-3.3 s with and without; first chart 3.6 s against 4.0-4.1 s. Kernel
+    memory after the full demo 173 MB (open vial) and 249 MB (rigid); ten viewers with no pool 54.1 s
+    against 54.4 s, 148 MB per kernel against 220 MB; round trips 69 / 110, 79 / 113, 50 / 80 ms (open
+    vial) and 118 / 151, 141 / 179, 52 / 81 ms (rigid); a page on a ready pool of two 1.1-1.2 s.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
@@ -93,6 +99,7 @@ def against(value: float, target: float, unit: str) -> str:
 
 
 RUNNING: list = []  # servers started by this script, stopped on any exit
+RENDERERS: dict = {}  # server folder -> its shared chart renderer
 
 
 OPEN_VIAL = ROOT / "protocols" / "supercooled-open-vial.yaml"
@@ -108,7 +115,14 @@ def start(pool: int = 0, protocol: Path = OPEN_VIAL):
     t0 = time.monotonic()
     compile_package()  # as `coldmargin app` does before it starts voila (~20 ms when the bytecode is current)
     log = (folder / "voila.log").open("wb")  # read by stop(): voila's warnings say why a page stayed blank
-    proc = subprocess.Popen(voila_command(cfg, port), env=voila_environment(cfg, folder / "jupyter"),
+    chart_socket = None
+    if os.environ.get("BENCH_NO_RENDERER") != "1":  # as `coldmargin app`: one shared chart renderer
+        from planner import renderer
+
+        charts, chart_socket = renderer.start(folder, wait=False)
+        RENDERERS[folder] = charts
+    proc = subprocess.Popen(voila_command(cfg, port), env=voila_environment(cfg, folder / "jupyter",
+                                                                            chart_socket=chart_socket),
                             stdout=log, stderr=subprocess.STDOUT, cwd=folder, start_new_session=True)
     log.close()
     RUNNING.append((proc, folder))
@@ -147,6 +161,11 @@ def stop(proc, folder) -> None:
             proc.wait(timeout=30)
         except subprocess.TimeoutExpired:
             os.killpg(proc.pid, signal.SIGKILL)
+    charts = RENDERERS.pop(folder, None)
+    if charts is not None:
+        from planner import renderer
+
+        renderer.stop(charts)
     if os.environ.get("BENCH_VOILA_LOG") == "1":
         log_warnings(folder)
         shutil.copy(Path(folder) / "voila.log", Path(tempfile.gettempdir()) / f"coldmargin-voila-{proc.pid}.log")

@@ -10,12 +10,14 @@ is also written out as a word: ``fine`` (light), ``watch`` (mid), ``do not proce
 
 from __future__ import annotations
 
+import json
 import math
 from collections.abc import Sequence
 from typing import Any
 
 import altair as alt
-import vl_convert
+
+from planner.renderer import draw
 
 STATE_WORDS = {"fine": "fine", "watch": "watch", "do-not-proceed": "do not proceed", "not-judged": "not judged"}
 # fill, text colour; relative luminance roughly 0.90, 0.45, 0.05 and white for "not judged"
@@ -120,9 +122,9 @@ def series_chart(
 
 def to_svg(chart: alt.Chart) -> str:
     """The chart as a self-contained SVG document (no scripts, no external links)."""
-    return vl_convert.vegalite_to_svg(chart.to_dict())
+    return draw(json.dumps(chart.to_dict()))
 
 
 def to_png(chart: alt.Chart, scale: float = 2.0) -> bytes:
     """The chart as PNG bytes, ``scale`` times its nominal pixel size (2 prints sharply at 150 dpi)."""
-    return vl_convert.vegalite_to_png(chart.to_dict(), scale=scale)
+    return draw(json.dumps(chart.to_dict()), "png", scale)

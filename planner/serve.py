@@ -153,8 +153,10 @@ def voila_command(cfg: ServeConfig, port: int) -> list[str]:
     return cmd
 
 
-def voila_environment(cfg: ServeConfig, state_dir: Path, base: dict[str, str] | None = None) -> dict[str, str]:
-    """The environment voila and its kernels run with: own Jupyter folders, the app's settings."""
+def voila_environment(cfg: ServeConfig, state_dir: Path, base: dict[str, str] | None = None,
+                      chart_socket: Path | None = None) -> dict[str, str]:
+    """The environment voila and its kernels run with: own Jupyter folders, the app's settings, and the
+    shared chart renderer's socket when there is one (:mod:`planner.renderer`)."""
     env = dict(os.environ if base is None else base)
     for name, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_DATA_DIR", "data"),
                       ("JUPYTER_RUNTIME_DIR", "runtime"), ("IPYTHONDIR", "ipython")):
@@ -174,6 +176,11 @@ def voila_environment(cfg: ServeConfig, state_dir: Path, base: dict[str, str] | 
     if cfg.large_type:
         env["COLDMARGIN_LARGE_TYPE"] = "1"
     env["COLDMARGIN_NOTEBOOKS"] = str(notebooks_dir())
+    from planner.renderer import SOCKET_ENV
+
+    env.pop(SOCKET_ENV, None)
+    if chart_socket is not None:
+        env[SOCKET_ENV] = str(chart_socket)
     return env
 
 
@@ -249,7 +256,6 @@ def run_app(args: argparse.Namespace) -> int:
     state_dir = Path(tempfile.mkdtemp(prefix="coldmargin-jupyter-")) if own_dir else cfg.jupyter_dir
     state_dir.mkdir(parents=True, exist_ok=True)
     cmd = voila_command(cfg, port)
-    env = voila_environment(cfg, state_dir)
     if getattr(args, "print_command", False):
         shown = [c if not c.startswith("--token=") else "--token=(hidden)" for c in cmd]
         print(" ".join(shown))
@@ -267,6 +273,16 @@ def run_app(args: argparse.Namespace) -> int:
     print("Planning support only: a margin is never a guarantee; local codes and biosafety rules decide.")
     print("Stop with Ctrl+C.", flush=True)
     compile_package()
+    from planner import renderer
+
+    # one warm chart renderer for every kernel, started alongside voila (a kernel that cannot reach it
+    # draws its charts itself)
+    try:
+        charts, chart_socket = renderer.start(state_dir, wait=False)
+    except OSError as exc:
+        print(f"coldmargin: no shared chart renderer ({exc}); each page draws its own charts", file=sys.stderr)
+        charts, chart_socket = None, None
+    env = voila_environment(cfg, state_dir, chart_socket=chart_socket)
     proc = subprocess.Popen(cmd, env=env, start_new_session=True)
     # voila runs in its own session, so a SIGTERM or SIGHUP sent to this process alone would leave it and
     # its kernels running: treat them like Ctrl+C and stop the whole voila process group.
@@ -283,6 +299,8 @@ def run_app(args: argparse.Namespace) -> int:
     finally:
         for sig, handler in previous.items():
             signal.signal(sig, handler)
+        if charts is not None:
+            renderer.stop(charts)
         if own_dir:
             shutil.rmtree(state_dir, ignore_errors=True)
 

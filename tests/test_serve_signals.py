@@ -52,6 +52,15 @@ def test_sigterm_to_the_launcher_stops_voila(tmp_path):
             children = _children(proc.pid)
             time.sleep(0.1)
         assert children, "voila was not started"
+        # two children: voila and the shared chart renderer; both must stop with the launcher
+        deadline_both = time.monotonic() + 20
+        while len(children) < 2 and time.monotonic() < deadline_both:
+            time.sleep(0.1)
+            children = _children(proc.pid)
+        commands = {c: Path(f"/proc/{c}/cmdline").read_bytes() for c in children}
+        voila = [c for c, cmd in commands.items() if b"voila" in cmd]
+        assert voila and any(b"planner.renderer" in cmd for cmd in commands.values()), commands
+        children = voila + [c for c in children if c not in voila]
         given = {arg: _voila_argument(children[0], arg) for arg in ("--port=", "--token=", "--Voila.port_retries=")}
         proc.send_signal(signal.SIGTERM)
         proc.wait(timeout=40)

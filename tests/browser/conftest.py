@@ -91,7 +91,10 @@ def server():
     cfg = ServeConfig(token=token, protocol=ROOT / "protocols" / "supercooled-open-vial.yaml", archive=archive,
                       key=key, timeout_s=240).check()
     port = free_port(0)
-    env = voila_environment(cfg, folder / "jupyter")
+    from planner import renderer
+
+    charts, chart_socket = renderer.start(folder)  # as `coldmargin app`: one chart renderer for every page
+    env = voila_environment(cfg, folder / "jupyter", chart_socket=chart_socket)
     log = folder / "voila.log"
     with open(log, "wb") as out:
         proc = subprocess.Popen(voila_command(cfg, port), env=env, stdout=out, stderr=subprocess.STDOUT,
@@ -109,6 +112,7 @@ def server():
         except subprocess.TimeoutExpired:
             os.killpg(proc.pid, signal.SIGKILL)
             proc.wait(timeout=10)
+        renderer.stop(charts)
         SCREENSHOTS.parent.mkdir(parents=True, exist_ok=True)
         shutil.copyfile(log, SCREENSHOTS.parent / "voila.log")  # kept for reading after a failure
         shutil.rmtree(folder, ignore_errors=True)

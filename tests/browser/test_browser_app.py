@@ -7,6 +7,7 @@ go to the app's own server: the page works offline.
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import pytest
 
@@ -119,6 +120,22 @@ def test_the_page_has_its_fonts_and_charts_with_no_internet(plan, server, shot):
     plan.requests_seen.remove(probe)
     shot(plan, "plan-offline-sample")
     _only_local(plan, server)
+    # the charts came from the app's one shared renderer: no kernel has loaded a chart engine of its own
+    kernels = _kernel_pids(server.pid)
+    assert kernels
+    assert [pid for pid in kernels if "vl_convert" in Path(f"/proc/{pid}/maps").read_text()] == []
+
+
+def _kernel_pids(voila_pid: int) -> list[int]:
+    out = []
+    for d in Path("/proc").iterdir():
+        if d.name.isdigit():
+            try:
+                if b"ipykernel" in (d / "cmdline").read_bytes() and int((d / "stat").read_text().split()[3]) == voila_pid:
+                    out.append(int(d.name))
+            except OSError:
+                continue
+    return out
 
 
 def test_the_rigid_demo_shows_its_chamber_chart(plan, server, shot):
@@ -179,7 +196,11 @@ def test_changing_the_concentration_moves_the_freezing_point_and_margins(plan, s
     fp_after = _number_after(after_numbers, "Freezing point")
     assert fp_after < fp_before  # more trehalose, lower liquidus
     assert _strip(plan) != before_strip
-    plan.locator(".cm-step-solution .cm-chart-updating").wait_for(state="detached")
+    # the chart follows the numbers (drawn after them): wait for it to mark the new solution
+    plan.wait_for_function(
+        "(want) => { const box = document.querySelector('.cm-step-solution .cm-chart-box');"
+        " const m = box && box.innerText.replace(/\u2212/g, '-').match(/this solution: (-?\\d+\\.\\d+)/);"
+        " return m && Math.abs(parseFloat(m[1]) - want) < 0.006; }", arg=fp_after, timeout=60_000)
     chart_text = plan.locator(".cm-step-solution .cm-chart-box").inner_text().replace("\u2212", "-")
     marked = re.search(r"this solution: (-?\d+\.\d+)", chart_text)
     assert marked and abs(float(marked.group(1)) - fp_after) < 0.006  # the chart marks the new solution
@@ -259,7 +280,6 @@ def test_compare_two_scenarios(page, server, shot):
 def test_calibrate_from_an_uploaded_assay_and_save_it(page, server, shot):
     """The calibrate page in the browser: an assay CSV sent through the page's own upload button, the fit
     with its 90 % interval and both charts, then the calibration saved where the person says."""
-    from pathlib import Path
 
     assay = Path(__file__).resolve().parents[2] / "protocols" / "assays" / "demo-saline-holds.csv"
     page.goto(server.url("calibrate"))
