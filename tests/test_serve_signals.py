@@ -61,6 +61,9 @@ def test_sigterm_to_the_launcher_stops_voila(tmp_path):
         voila = [c for c, cmd in commands.items() if b"voila" in cmd]
         assert voila and any(b"planner.renderer" in cmd for cmd in commands.values()), commands
         children = voila + [c for c in children if c not in voila]
+        environ = dict(e.split(b"=", 1) for e in Path(f"/proc/{voila[0]}/environ").read_bytes().split(b"\0") if b"=" in e)
+        # voila's kernels are told where the renderer listens, inside the app's own folder
+        assert environ.get(b"COLDMARGIN_CHART_SOCKET") == str(tmp_path / "jupyter" / "charts.sock").encode()
         given = {arg: _voila_argument(children[0], arg) for arg in ("--port=", "--token=", "--Voila.port_retries=")}
         proc.send_signal(signal.SIGTERM)
         proc.wait(timeout=40)
