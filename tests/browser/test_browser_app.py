@@ -94,6 +94,7 @@ def test_step_through_the_demo_end_to_end(plan, server, shot):
     plan.locator(".cm-review-margins table").wait_for()
     text = plan.locator(".cm-review-margins").inner_text()
     assert re.search(r"fine|watch|do not proceed", text)
+    assert "from planner.ui import" not in plan.content()  # the notebook's source is not sent to viewers
     plan.get_by_role("button", name="Large type").click()  # as projected in a lab meeting
     plan.locator(".cm-app.cm-large").wait_for()
     for title in ("Sample", "Container", "Schedule"):
