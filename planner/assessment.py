@@ -8,8 +8,10 @@ Margin states, in our own words (three levels, judged against the lab's policy):
 - ``do-not-proceed``: at or past the ``stop`` threshold.
 
 A margin with no threshold for this kind of protocol is reported as ``not-judged`` with the reason. The
-verdict is the worst state among the judged margins, with the margins that set it as its reasons. A
-margin is never a guarantee; the ``planning-support`` caution says so in every assessment.
+verdict is the worst state among the judged margins, with the margins that set it as its reasons; it is
+at least ``watch`` when no margin could be judged or when a numerical solution missed its tolerance
+(a ``not-converged`` flag: the figures that depend on it are withheld). A margin is never a guarantee;
+the ``planning-support`` caution says so in every assessment.
 """
 
 from __future__ import annotations
@@ -220,21 +222,30 @@ def assess(protocol: Protocol, sections: tuple[str, ...] = SECTION_ORDER) -> Ass
         cautions.append(Caution(cid, entry["title"], entry["text"], entry["source"],
                                 cite(entry["source"]).citation()))
 
-    return Assessment(protocol.title, context, margins, _verdict(margins), flags, cautions)
+    return Assessment(protocol.title, context, margins, _verdict(margins, flags), flags, cautions)
 
 
-def _verdict(margins: list[Margin]) -> Verdict:
+def _verdict(margins: list[Margin], flags: list[Flag] | tuple[Flag, ...] = ()) -> Verdict:
+    """The worst judged state, with the margins that set it; at least ``watch`` when no margin could be
+    judged or when a numerical solution missed its tolerance (its figures are withheld, so a "fine" would
+    rest on numbers that were not computed)."""
     judged = [m for m in margins if m.state in STATES]
     if not judged:
-        return Verdict("watch", ["no margin could be judged for this protocol"])
-    worst = max(judged, key=lambda m: STATES.index(m.state)).state
-    reasons = [
-        f"{m.label}: {_fmt(m.value)}{'' if m.unit == '1' else ' ' + m.unit} ({STATE_WORDS[m.state]}; "
-        f"watch at {_fmt(m.watch)}, stop at {_fmt(m.stop)})"
-        for m in judged
-        if m.state == worst
-    ]
-    return Verdict(worst, reasons[:5])
+        worst, reasons = "watch", ["no margin could be judged for this protocol"]
+    else:
+        worst = max(judged, key=lambda m: STATES.index(m.state)).state
+        reasons = [
+            f"{m.label}: {_fmt(m.value)}{'' if m.unit == '1' else ' ' + m.unit} ({STATE_WORDS[m.state]}; "
+            f"watch at {_fmt(m.watch)}, stop at {_fmt(m.stop)})"
+            for m in judged
+            if m.state == worst
+        ][:5]
+    unsolved = [f for f in flags if f.code == "not-converged"]
+    if unsolved:
+        if worst == "fine":
+            worst, reasons = "watch", []
+        reasons += [f"not computed – {f.message} (the figures that depend on it are withheld)" for f in unsolved[:3]]
+    return Verdict(worst, reasons)
 
 
 def _fmt(x: float | None) -> str:

@@ -95,3 +95,47 @@ def test_common_practice_citation_reads_plainly():
     from planner.references import cite
 
     assert cite("common-practice").citation() == "Common practice, no source"
+
+
+def test_a_solution_that_missed_its_tolerance_keeps_the_verdict_from_fine(monkeypatch):
+    """A section whose numerical solution did not converge withholds its figures; the verdict may not
+    then say "fine" on the strength of the other margins (common practice, no source: an unfinished
+    calculation is not a pass)."""
+    import planner.assessment as assessment
+    from planner.results import Flag
+
+    protocol = load_protocol(SLOW)
+    before = assess(protocol)
+    real = assessment._section_builder
+
+    def with_unsolved_freezing(name):
+        build = real(name)
+        if name != "freezing":
+            return build
+
+        def flagged(p, context):
+            out = build(p, context)
+            out.report.flags.append(Flag("not-converged", "ramp to -80 C: residual 3e-4 K at t = 1200 s (test)"))
+            return out
+        return flagged
+
+    monkeypatch.setattr(assessment, "_section_builder", with_unsolved_freezing)
+    after = assess(protocol)
+    order = ("fine", "watch", "do-not-proceed")
+    assert order.index(after.verdict.state) >= max(order.index(before.verdict.state), 1)
+    assert any("not computed – freezing: ramp to -80 C" in r for r in after.verdict.reasons)
+
+
+def test_the_verdict_of_fine_margins_becomes_watch_when_a_solution_did_not_converge():
+    from planner.assessment import Margin, _verdict
+    from planner.results import Flag
+
+    fine = Margin("supercooling_k", "Supercooling below the liquidus", 2.0, "K", "lower", 5.0, 20.5, "fine",
+                  "default", "", None, "")
+    assert _verdict([fine]).state == "fine"
+    v = _verdict([fine], [Flag("not-converged", "freezing: step at 10 s (test)")])
+    assert v.state == "watch" and v.reasons == ["not computed – freezing: step at 10 s (test) (the figures "
+                                                "that depend on it are withheld)"]
+    stop = Margin("x", "X", 9.0, "K", "lower", 1.0, 2.0, "do-not-proceed", "default", "", None, "")
+    v = _verdict([fine, stop], [Flag("not-converged", "freezing: step (test)")])
+    assert v.state == "do-not-proceed" and v.reasons[0].startswith("X: 9 K") and len(v.reasons) == 2
