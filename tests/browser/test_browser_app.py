@@ -258,6 +258,10 @@ def test_sign_into_an_archive_and_verify_it_from_the_archive_notebook(plan, serv
     assert digest in result and server.signer in result and "valid" in result
     page.frame_locator(".cm-record-frame").locator("body").wait_for()
     shot(page, "archive-verified")
+    assert _cut_text(page) == []
+    page.get_by_role("button", name="Large type").click()
+    page.locator(".cm-archive.cm-large").wait_for()
+    assert _cut_text(page) == []  # a PI checking a record on the projector
     _only_local(page, server)
 
 
