@@ -676,3 +676,13 @@ def test_a_second_agent_in_a_bath_is_chosen_from_the_same_list_as_the_first():
     second = fields["cryoprotectants[1].agent"]
     assert second.kind == "choice" and {"trehalose", "glycerol"} <= set(second.options())
     assert fields["cryoprotectants[1].molal"].kind == "number"
+
+
+def test_a_word_and_its_label_show_on_one_row():
+    from planner.ui.summary import section_numbers
+
+    rows = dict(section_numbers({"environment": "still-air", "environment_label": "Still air", "biot_number": 0.0165,
+                                 "material_label": "a label with no word beside it"}))
+    assert rows["Environment"] == "Still air (still-air)"
+    assert "Environment label" not in rows and rows["Biot number"] == "0.0165"
+    assert rows["Material label"] == "a label with no word beside it"  # kept: nothing to join it to

@@ -104,6 +104,12 @@ def section_numbers(section: dict[str, Any]) -> list[tuple[str, str]]:
     for key, value in section.items():
         if key in SKIPPED_KEYS or isinstance(value, (dict, list)):
             continue
+        if key.endswith("_label") and isinstance(section.get(key[: -len("_label")]), str):
+            continue  # shown with the word it names, on one row
+        words = section.get(f"{key}_label")
+        if isinstance(value, str) and isinstance(words, str) and words != value:
+            out.append((label_for(key), f"{words} ({value})"))  # "Still air (still-air)": the file's word too
+            continue
         out.append((label_for(key), fmt(value)))
     return out
 
