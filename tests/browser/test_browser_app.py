@@ -168,6 +168,37 @@ def test_the_cells_demo_shows_cell_volume_with_its_tolerance_band(plan, server, 
     _only_local(plan, server)
 
 
+def test_upload_a_protocol_change_one_number_and_download_it(plan, server, tmp_path, shot):
+    """A protocol file sent through the page's own upload dialog opens in the planner; after one change
+    the downloaded YAML holds that change and every other value as it was uploaded."""
+    import yaml
+
+    source = Path(__file__).resolve().parents[2] / "protocols" / "slow-freeze-dmso.yaml"
+    with plan.expect_file_chooser() as chooser:
+        plan.get_by_role("button", name=re.compile("Upload protocol")).click()
+    chooser.value.set_files(str(source))
+    plan.get_by_role("button", name="Sample", exact=True).click()
+    plan.locator(".cm-body h3", has_text="Sample").wait_for()
+    title = plan.get_by_label("Protocol title", exact=True)
+    plan.wait_for_function("() => { const t = document.querySelector('.cm-f-title input');"
+                           " return t && t.value.includes('fibroblast'); }")
+    assert "Slow freezing of a fibroblast suspension" in title.input_value()
+    plan.locator(".cm-summary .cm-verdict").wait_for()
+    box = plan.get_by_label("Volume (mL)", exact=True)
+    box.fill("1.2")
+    box.press("Enter")
+    plan.wait_for_function("() => document.querySelector('.cm-download-box a') &&"
+                           " atob(document.querySelector('.cm-download-box a').href.split(',')[1]).includes('1.2')")
+    with plan.expect_download() as got:
+        plan.locator(".cm-download-box a").click()
+    saved = tmp_path / got.value.suggested_filename
+    got.value.save_as(saved)
+    expected = yaml.safe_load(source.read_text())
+    expected["sample"]["volume_ml"] = 1.2
+    assert yaml.safe_load(saved.read_text()) == expected
+    _only_local(plan, server)
+
+
 def test_the_other_pages_open_from_the_plan(plan, server, shot):
     """The plan's links to the other pages work with the sign-in the plan's address gave."""
     with plan.context.expect_page() as opened:
