@@ -36,7 +36,9 @@ class InputError(PlannerError):
         self.value = value
         self.allowed = allowed
         self.hint = hint
-        message = f"{field}: {value!r} is not valid; allowed: {allowed}"
+        # "missing" stands for a key or box left empty: said as such, not as if someone had typed it
+        shown = "no value given" if value == "missing" else f"{value!r} is not valid"
+        message = f"{field}: {shown}; allowed: {allowed}"
         if hint:
             message += f" ({hint})"
         super().__init__(message)

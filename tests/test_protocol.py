@@ -278,3 +278,9 @@ def test_every_key_the_loader_reads_as_a_number_has_a_range():
     assert len(keys) >= 30
     last = {pattern.rsplit(".", 1)[-1] for pattern in BOUNDS}
     assert keys - last == set()
+
+
+def test_a_value_left_out_is_said_to_be_missing_not_quoted_as_if_typed():
+    err = error_of(edited(RIGID, "  volume_ml: 2.0\n", ""))
+    assert str(err) == "sample.volume_ml: no value given; allowed: a value is required"
+    assert err.value == "missing" and err.field == "sample.volume_ml"

@@ -267,7 +267,7 @@ def test_rows_are_added_removed_and_moved(model):
     # an empty hold reaches the loader as an empty step (the draft keeps no empty values); the refusal is
     # shown on the box to fill, in the loader's words for a missing value
     assert model.field_errors == {
-        f"schedule.steps[{n}].hold_h": f"schedule.steps[{n}].hold_h: 'missing' is not valid; allowed: a value is "
+        f"schedule.steps[{n}].hold_h": f"schedule.steps[{n}].hold_h: no value given; allowed: a value is "
                                        "required"}
     assert model.errors_within(f"schedule.steps[{n}]") == [model.field_errors[f"schedule.steps[{n}].hold_h"]]
     assert not model.current and model.message == ""  # shown on the box, so not repeated as a message
@@ -291,7 +291,7 @@ def test_a_new_empty_row_is_refused_at_its_first_box(model, list_path, kind, box
     index = model.add_row(list_path, kind)
     path = f"{list_path}[{index}].{box}"
     assert list(model.field_errors) == [path]
-    assert model.field_errors[path] == f"{path}: 'missing' is not valid; allowed: a value is required"
+    assert model.field_errors[path] == f"{path}: no value given; allowed: a value is required"
     assert model.step_of_error(path) == model.step_of_error(f"{list_path}[{index}]")
 
 
@@ -357,7 +357,7 @@ def test_upload_blank_and_download(model):
     model.start_blank()
     assert model.value("sample.volume_ml") is None and model.report is None
     # a blank protocol says what is missing, first the title (the loader checks required keys in order)
-    assert model.field_errors == {"title": "title: 'missing' is not valid; allowed: a value is required"}
+    assert model.field_errors == {"title": "title: no value given; allowed: a value is required"}
     assert model.message == ""  # the title field shows it
 
 
