@@ -133,6 +133,7 @@ def serve(path: str | os.PathLike, parent_pid: int | None = None) -> None:
     _local(TINY_SPEC, "svg", 1.0)  # the engine's start, paid once before the first kernel asks
     path = Path(path)
     path.unlink(missing_ok=True)
+    os.umask(0o177)  # the socket is made 0600: no moment in which another user could connect
     with _Server(str(path), _Handler) as server:
         os.chmod(path, 0o600)
         if parent_pid is not None:
