@@ -724,3 +724,15 @@ def test_the_stale_note_goes_after_the_chart_and_before_its_note():
     marked = with_stale_note(text, True)
     assert marked == '<div class="cm-chart"><svg></svg></div>' + STALE_NOTE + '<div class="cm-chart cm-muted">a note</div>'
     assert with_stale_note(marked, True) == marked and with_stale_note(marked, False) == text
+
+
+def test_the_map_says_how_it_scales_the_interface_with_volume():
+    """The open-vial demo's 10 mm vial has a liquid-air interface of pi (5 mm)^2 = 78.5 mm^2 (geometry);
+    the map's note states it and the volume^(2/3) scaling it assumes for the other volumes."""
+    from planner.ui.maps import freeze_map
+    from planner.ui.planner_model import PlannerModel
+
+    m = PlannerModel(inline=True)
+    m.load_demo("supercooled-open-vial")
+    note = freeze_map([(m.protocol, m.assessment)])[4]
+    assert "liquid–air interface (78.5 mm² at 1 mL) scales as volume^(2/3)" in note

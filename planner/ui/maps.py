@@ -73,5 +73,9 @@ def freeze_map(scenarios: list[tuple[Any, Any]], labels: list[str] | None = None
                                       first.liquidus, interface_areas=areas, quantile=quantile)
     note = (f"Isothermal hold of {duration / 3600:.3g} h with the nucleation model of the first scenario "
             f"({getattr(first.model, 'name', 'preset')}) and its liquidus {first.liquidus - CELSIUS_OFFSET:.2f} °C; "
-            + ("central estimate." if quantile is None else f"{quantile:.0%} quantile of the model's draws."))
+            + ("central estimate" if quantile is None else f"{quantile:.0%} quantile of the model's draws")
+            + (f". Each volume is taken in a container of the same shape as the first scenario's, so its "
+               f"liquid–air interface ({first.interface_area * 1e6:.3g} mm² at {first.volume * 1e6:.3g} mL) "
+               "scales as volume^(2/3); a sample in a container of another shape, or without the ramps to and "
+               "from the hold, has its own figure." if first.interface_area else "."))
     return list(VOLUMES_ML), temps_c, np.asarray(grid).T, marks, note

@@ -58,6 +58,12 @@ CSS = """
 .cm-links a { margin-right: 1.2em; }
 .cm-scenario { min-width: 0; flex: 1 1 0; padding-right: 8px; }
 .cm-scenario .widget-text, .cm-scenario .widget-dropdown { width: 100% !important; }
+/* three or four columns leave no room for a label beside its box: the label goes above, the box takes the
+   column's width, so "open" never shows as "ope" */
+.cm-scenario .widget-text, .cm-scenario .widget-dropdown { flex-direction: column; align-items: stretch; }
+.cm-scenario .widget-text .widget-label, .cm-scenario .widget-dropdown .widget-label { width: auto !important;
+  text-align: left; align-self: flex-start; max-width: 100%; }
+.cm-scenario .widget-text > input, .cm-scenario .widget-dropdown > select { width: 100%; flex: 0 0 auto; }
 .cm-record { border: 1px solid #1f6f43; padding: 6px 10px; background: #f3faf5; }
 .cm-verify-ok { color: #1f6f43; font-weight: 600; }
 .cm-verify-bad { color: #a1241b; font-weight: 600; }

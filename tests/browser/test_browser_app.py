@@ -310,6 +310,23 @@ def test_compare_two_scenarios(page, server, shot):
     page.locator(".cm-compare.cm-large").wait_for()
     shot(page, "compare-two-scenarios")
     assert _cut_text(page) == []  # projected in large type, every label and button still reads whole
+    # a third scenario, a copy of A with a smaller volume: its column, its margins and its mark on the map
+    page.get_by_role("button", name="Add", exact=True).click()
+    page.get_by_label("Sample volume (mL) – C", exact=True).wait_for()
+    box = page.get_by_label("Sample volume (mL) – C", exact=True)
+    box.fill("0.25")
+    box.press("Enter")
+    page.wait_for_function("() => document.querySelector('.cm-compare-margins tr').innerText.includes('C:')")
+    page.wait_for_function("() => { const m = document.querySelector('.cm-compare-map svg');"
+                           " return m && m.textContent.includes('C'); }", timeout=90_000)
+    page.locator(".cm-compare-map svg text", has_text=re.compile(r"^C$|^A C$|^C A$")).first.wait_for(timeout=90_000)
+    page.locator(".cm-compare-charts svg text", has_text="C: copy of supercooled-open-vial").first.wait_for(
+        timeout=90_000)  # its history joins the overlaid charts
+    shot(page, "compare-three-scenarios")
+    narrow = page.evaluate("""() => Array.from(document.querySelectorAll('.cm-scenario input, .cm-scenario select'))
+      .filter(e => e.offsetParent !== null && e.getBoundingClientRect().width < 150).length""")
+    assert narrow == 0  # three columns in large type: every box keeps room for its value
+    assert _cut_text(page) == []
     _only_local(page, server)
 
 
