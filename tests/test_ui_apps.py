@@ -390,6 +390,11 @@ def test_sign_step_shows_the_record_and_offers_three_downloads(tmp_path):
     assert "Signed and archived." in shown
     assert f"<code class='cm-record-id'>{body['record_id']}</code> version 1" in shown
     assert f"<code class='cm-record-hash'>sha256:{hashlib.sha256(data).hexdigest()}</code>" in shown
+    from planner.ui.summary import state_badge
+
+    # the state signed is the record's own (the stand-in assessment's "fine")
+    assert body["assessment"]["verdict"]["state"] == "fine"
+    assert f"signed with: {state_badge('fine')}" in shown
     links = downloads(shown)
     stem = f"record-{body['record_id']}-v1"
     assert {name: (t, m) for name, (t, m, _) in links.items()} == {

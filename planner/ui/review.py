@@ -149,7 +149,7 @@ class SignView:
             html_box("<h4>Signature</h4><p class='cm-intro'>The key is read and unlocked on the computer "
                      "running the planner; it never goes to the browser.</p>"),
             self.name, self.meaning, self.key_file, self.passphrase, self.archive, self.register,
-            self.sign_button, self.status, self.result,
+            w.HBox([self.sign_button]), self.status, self.result,
         ])
         add_classes(self.box, "cm-step cm-step-sign")
 
@@ -199,9 +199,14 @@ def signed_html(done) -> str:
                                    render.render_html(done.data).encode("utf-8"), "record (HTML)", "text/html"))
         links.append(download_link(f"record-{done.record_id}-v{done.version}.pdf", render.render_pdf(done.data),
                                    "record (PDF)", "application/pdf"))
+    import json
+
+    verdict = (json.loads(done.data).get("body", {}).get("assessment", {}).get("verdict") or {}).get("state")
+    recorded = (f"The record keeps the overall state it was signed with: {state_badge(verdict)}<br>"
+                if verdict else "")
     return (f"<div class='cm-record'><b>Signed and archived.</b><br>"
             f"Record <code class='cm-record-id'>{html.escape(done.record_id)}</code> version {done.version}, "
-            f"signed {html.escape(done.meaning)} by {html.escape(done.printed_name)}<br>"
+            f"signed {html.escape(done.meaning)} by {html.escape(done.printed_name)}<br>{recorded}"
             f"Record hash <code class='cm-record-hash'>sha256:{html.escape(done.record_hash)}</code><br>"
             f"Archive {html.escape(done.archive)}, head <code>{html.escape(done.head)}</code> "
             f"(keep a copy of the head elsewhere)<br>{' · '.join(links)}</div>")
