@@ -698,7 +698,7 @@ def test_the_compare_map_runs_off_the_page_and_shows_progress(monkeypatch):
 def test_a_refused_edit_marks_the_chart_stale_without_drawing_it_again(monkeypatch):
     """The last valid result stays on show: its chart gains a stale note at once (no "Updating" note and
     no second drawing of the same result), and loses it when the value is put right."""
-    import planner.ui.stepcharts as stepcharts
+    import planner.ui.charting as stepcharts
     from planner.ui.planner_app import UPDATING, PlannerApp
     from planner.ui.planner_model import PlannerModel
     from planner.ui.stepcharts_data import STALE_NOTE
@@ -741,3 +741,61 @@ def test_the_map_says_how_it_scales_the_interface_with_volume():
     m.load_demo("supercooled-open-vial")
     note = freeze_map([(m.protocol, m.assessment)])[4]
     assert "liquid–air interface (78.5 mm² at 1 mL) scales as volume^(2/3)" in note
+
+
+def _altair_freeze_map(volumes, temps, grid, marks):
+    """The map as altair writes it from the same description (altair is the outside reference for the
+    spec that planner.ui.mapchart writes by hand)."""
+    import altair as alt
+
+    from planner.ui.mapchart import HEIGHT, LIMIT, TITLE, WIDTH, nearest
+
+    p = np.asarray(grid, dtype=float)
+    marked = {}
+    for v, t, lbl in marks:
+        marked.setdefault((nearest(volumes, v), nearest(temps, t)), []).append(lbl)
+    rows = [{"v": float(v), "t": float(t), "p": float(p[i, j]), "label": " ".join(marked.get((float(v), float(t)), []))}
+            for i, t in enumerate(temps) for j, v in enumerate(volumes) if math.isfinite(p[i, j])]
+    x, y = alt.X("v:O", sort="ascending"), alt.Y("t:O", sort="descending")
+    ink = alt.condition("datum.p > 0.5", alt.value("white"), alt.value("black"))
+    plain, boxed = [r for r in rows if not r["label"]], [r for r in rows if r["label"]]
+    layers = [
+        alt.Chart(alt.Data(values=rows)).mark_rect().encode(
+            x=alt.X("v:O", title="sample volume (mL)", sort="ascending"),
+            y=alt.Y("t:O", title="hold temperature (°C)", sort="descending"),
+            color=alt.Color("p:Q", title="P(frozen)", scale=alt.Scale(scheme="greys", domain=[0, 1]))),
+        alt.Chart(alt.Data(values=plain)).mark_text(fontSize=11).encode(
+            x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink),
+        alt.Chart(alt.Data(values=boxed)).mark_rect(fillOpacity=0, stroke=LIMIT, strokeWidth=3).encode(x=x, y=y),
+        alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=11, dy=6).encode(
+            x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink),
+        alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=10, dy=-7, fontWeight="bold").encode(
+            x=x, y=y, text="label:N", color=alt.condition("datum.p > 0.5", alt.value("white"), alt.value(LIMIT))),
+    ]
+    return alt.layer(*layers).properties(width=WIDTH, height=HEIGHT + 40, title=TITLE).to_dict()
+
+
+def test_the_map_written_without_altair_is_the_spec_altair_writes():
+    import altair as alt
+
+    from planner.ui.mapchart import SCHEMA, freeze_map_chart
+
+    args = ([0.1, 1, 10], [-1, -4, -8], [[0.0, 0.01, 0.03], [0.002, 0.0097, 0.6], [0.02, 0.07, 0.9]],
+            [(1.0, -4.0, "A"), (1.0, -4.0, "B"), (10.0, -8.0, "C")])
+    assert freeze_map_chart(*args[:3], marks=args[3]) == _altair_freeze_map(*args)
+    assert SCHEMA == alt.SCHEMA_URL  # the Vega-Lite version the installed altair writes
+
+
+def test_a_pages_first_chart_loads_no_chart_library_in_the_kernel():
+    """The sample step's map is drawn with neither altair nor (through the app's renderer) vl-convert in
+    the process; here with no renderer, so vl-convert draws it locally, but altair stays out."""
+    import subprocess
+    import sys
+
+    code = ("import sys; from planner.ui.planner_model import PlannerModel; "
+            "from planner.ui.charting import chart_for_step; m = PlannerModel(inline=True); "
+            "m.load_demo('supercooled-open-vial'); html = chart_for_step('freeze_map', m); "
+            "print('altair' in sys.modules, '<svg' in html, 'this plan' in html)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=180, check=True,
+                         cwd=ROOT).stdout.split()
+    assert out == ["False", "True", "True"]

@@ -205,8 +205,8 @@ class CompareApp:
         self.map_progress.value = 0
 
         def drawn_map() -> str:
+            from planner.ui.mapchart import freeze_map_chart
             from planner.ui.maps import freeze_map
-            from planner.ui.stepcharts import freeze_map_chart
             from planner.ui.svg import chart_html
 
             usable = [(s.protocol, s.assessment) for s in snaps if s.assessment is not None]

@@ -322,9 +322,7 @@ class StepView:
                 # a newer assessment is running: its own chart follows, and drawing this one now would only
                 # slow it down (both need the interpreter)
                 raise Superseded
-            from planner.ui.stepcharts import (
-                chart_for_step,  # altair loads on the chart thread, not the page's
-            )
+            from planner.ui.charting import chart_for_step  # any chart library loads on this thread
 
             return chart_for_step(self.spec.chart, snap)
 

@@ -17,7 +17,9 @@ import altair as alt
 import numpy as np
 
 from planner.protocol import CELSIUS_OFFSET
-from planner.ui.stepcharts_data import Snapshot, snapshot, with_stale_note
+from planner.ui.charting import chart_for_step
+from planner.ui.mapchart import draw_freeze_map, freeze_map_chart
+from planner.ui.stepcharts_data import Snapshot, snapshot
 
 WIDTH, HEIGHT = 620, 240
 INK = "#1d1d1d"
@@ -180,54 +182,6 @@ def cells_chart(time_min: Sequence[float], relative_volume: Sequence[float], pha
         color=alt.Color("phase:N", title=None, legend=alt.Legend(orient="top")),
         strokeDash=alt.StrokeDash("phase:N", legend=None)))
     return alt.layer(*layers).properties(width=WIDTH, height=HEIGHT, title="Cell volume during loading and unloading")
-
-
-def freeze_map_chart(volumes_ml: Sequence[float], temperatures_c: Sequence[float], probability: Any, *,
-                     marks: Sequence[tuple[float, float, str]] = (), title: str = "") -> alt.Chart:
-    """Probability of freezing over sample volume × hold temperature, with scenarios marked.
-
-    ``probability[i][j]`` belongs to ``temperatures_c[i]`` and ``volumes_ml[j]``; ``marks`` are
-    (volume [mL], temperature [°C], label).
-    """
-    p = np.asarray(probability, dtype=float)
-    # Labels sit inside their boxed cell, above its number: drawn above the box they covered the number of
-    # the cell above. Scenarios in the same cell share one box and one label ("A B").
-    marked: dict[tuple[float, float], list[str]] = {}
-    for v, t, lbl in marks:
-        marked.setdefault((_nearest(volumes_ml, v), _nearest(temperatures_c, t)), []).append(lbl)
-    rows = [
-        {"v": float(v), "t": float(t), "p": float(p[i, j]),
-         "label": " ".join(marked.get((float(v), float(t)), []))}
-        for i, t in enumerate(temperatures_c) for j, v in enumerate(volumes_ml) if math.isfinite(p[i, j])
-    ]
-    x = alt.X("v:O", sort="ascending")
-    y = alt.Y("t:O", sort="descending")
-    heat = alt.Chart(alt.Data(values=rows)).mark_rect().encode(
-        x=alt.X("v:O", title="sample volume (mL)", sort="ascending"),
-        y=alt.Y("t:O", title="hold temperature (°C)", sort="descending"),
-        color=alt.Color("p:Q", title="P(frozen)", scale=alt.Scale(scheme="greys", domain=[0, 1])),
-    )
-    ink = alt.condition("datum.p > 0.5", alt.value("white"), alt.value("black"))
-    plain = [r for r in rows if not r["label"]]
-    boxed = [r for r in rows if r["label"]]
-    layers: list[alt.Chart] = [heat, alt.Chart(alt.Data(values=plain)).mark_text(fontSize=11).encode(
-        x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink)]
-    if boxed:
-        # the box is the cell's own outline, so a label as wide as "this plan" stays inside it
-        layers.append(alt.Chart(alt.Data(values=boxed)).mark_rect(fillOpacity=0, stroke=LIMIT, strokeWidth=3)
-                      .encode(x=x, y=y))
-        layers.append(alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=11, dy=6)
-                      .encode(x=x, y=y, text=alt.Text("p:Q", format=".2f"), color=ink))
-        layers.append(alt.Chart(alt.Data(values=boxed)).mark_text(fontSize=10, dy=-7, fontWeight="bold")
-                      .encode(x=x, y=y, text="label:N",
-                              color=alt.condition("datum.p > 0.5", alt.value("white"), alt.value(LIMIT))))
-    return alt.layer(*layers).properties(width=WIDTH, height=HEIGHT + 40,
-                                         title=title or "Probability that the sample freezes during the hold")
-
-
-def _nearest(grid: Sequence[float], value: float) -> float:
-    g = np.asarray(grid, dtype=float)
-    return float(g[np.argmin(np.abs(g - value))])
 
 
 # --- adapters: the model's assessment → plain data -----------------------------------------------------
@@ -403,50 +357,15 @@ def _draw_cells(model):
     return cells_chart((np.asarray(t) / 60.0).tolist(), np.asarray(v).tolist(), phase, low=low, high=high), ""
 
 
-def _draw_freeze_map(model):
-    protocol = model.protocol
-    if protocol is None:
-        return None, "No chart: the protocol has not been assessed yet."
-    from planner.ui.maps import freeze_map
-
-    result = freeze_map([(protocol, model.assessment)], labels=["this plan"])
-    if result is None:
-        return None, "No map: the nucleation model is not installed."
-    volumes, temps, grid, marks, note = result
-    return freeze_map_chart(volumes, temps, grid, marks=marks), note
-
-
-__all__ = ["CHARTS", "Snapshot", "chart_for_step", "snapshot"]
+__all__ = ["CHARTS", "Snapshot", "chart_for_step", "freeze_map_chart", "snapshot"]
 
 CHARTS: dict[str, Callable[[Any], tuple[alt.Chart | None, str]]] = {
     "schedule": _draw_schedule,
     "freezing_point": _draw_freezing_point,
     "chamber": _draw_chamber,
     "cells": _draw_cells,
-    "freeze_map": _draw_freeze_map,
+    "freeze_map": draw_freeze_map,  # written without altair (planner.ui.mapchart)
 }
-
-
-def chart_for_step(name: str, model) -> str:
-    """HTML for the step's chart (inline SVG), or a note saying why there is none.
-
-    ``model`` is a :class:`PlannerModel` or a :class:`Snapshot` of one.
-    """
-    from planner.ui.svg import chart_html, note_html
-
-    if not isinstance(model, Snapshot):
-        model = snapshot(model)
-
-    draw = CHARTS.get(name)
-    if draw is None:
-        return note_html(f"No chart named {name!r}.")
-    try:
-        chart, note = draw(model)
-    except Exception as exc:  # a chart never takes the step down with it
-        return note_html(f"No chart ({type(exc).__name__}: {exc}).")
-    if chart is None:
-        return note_html(note)
-    return with_stale_note(chart_html(chart) + (note_html(note) if note else ""), bool(model.stale))
 
 
 def overlay_chart(series: list[dict[str, Any]]) -> alt.Chart:
