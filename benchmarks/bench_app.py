@@ -63,6 +63,8 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
     memory after the full demo 173 MB (open vial) and 249 MB (rigid); ten viewers with no pool 54.1 s
     against 54.4 s, 148 MB per kernel against 220 MB; round trips 69 / 110, 79 / 113, 50 / 80 ms (open
     vial) and 118 / 151, 141 / 179, 52 / 81 ms (rigid); a page on a ready pool of two 1.1-1.2 s.
+  - and with the first step's map written without altair, interleaved with the code before, medians of 3
+    and 5: first chart 3.3-3.6 s against 3.6-4.0 s; first interactive step 3.1-3.6 s against 3.2-3.4 s.
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
