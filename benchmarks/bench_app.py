@@ -65,6 +65,8 @@ Figures on this machine (2 cores, quiet: load average under 2 at each start), 20
     vial) and 118 / 151, 141 / 179, 52 / 81 ms (rigid); a page on a ready pool of two 1.1-1.2 s.
   - and with the first step's map written without altair, interleaved with the code before, medians of 3
     and 5: first chart 3.3-3.6 s against 3.6-4.0 s; first interactive step 3.1-3.6 s against 3.2-3.4 s.
+    Ten viewers with no pool: all interactive after 51.1 s, 119 MB per kernel (220 MB at the session's
+    start, 148 MB with the renderer alone).
 - earlier: about 560 widgets a page made 0 of 10 viewers usable within 240 s (the widget manager's
   one-shot request for all states has a 4 s limit); the first page now holds the first step only.
 """
