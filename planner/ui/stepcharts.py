@@ -18,13 +18,11 @@ import numpy as np
 
 from planner.protocol import CELSIUS_OFFSET
 from planner.ui.charting import chart_for_step
-from planner.ui.mapchart import draw_freeze_map, freeze_map_chart
+from planner.ui.mapchart import HEIGHT, LIMIT, WIDTH, draw_freeze_map, freeze_map_chart  # one size, one red
 from planner.ui.stepcharts_data import Snapshot, snapshot
 
-WIDTH, HEIGHT = 620, 240
 INK = "#1d1d1d"
 BATH, CENTRE, SURFACE = "#4d4d4d", "#0b5394", "#7f3f98"
-LIMIT = "#a1241b"
 LIQUIDUS = "#1f6f43"
 
 
