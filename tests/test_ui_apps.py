@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import base64
 import hashlib
+import html
 import json
 import math
 import os
@@ -799,3 +800,45 @@ def test_a_pages_first_chart_loads_no_chart_library_in_the_kernel():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=180, check=True,
                          cwd=ROOT).stdout.split()
     assert out == ["False", "True", "True"]
+
+
+# invented values a person would type into a blank protocol, by key pattern
+BLANK_FILL = {
+    "title": "Invented blank-start test", "sample.volume_ml": "1.0", "sample.geometry": "cylinder",
+    "sample.diameter_mm": "10", "container.kind": "open", "solution.carrier": "isotonic-saline",
+    "solution.cryoprotectants[].agent": "glycerol", "solution.cryoprotectants[].mass_percent": "10",
+    "schedule.start_c": "4", "schedule.steps[].ramp_to_c": "-3", "schedule.steps[].rate_c_per_min": "0.5",
+}
+
+
+def _shown_in(app, message: str) -> bool:
+    """The message is on the page: beside a box, on a row, or as the app's message."""
+    views = list(app.step_views.values())
+    boxes = [fv.error.value for v in views for fv in v.fields + [f for rv in v.rows for f in rv.fields]]
+    rows = [err.value for v in views for rv in v.rows for _, err in rv.row_errors]
+    return any(message in html.unescape(t) for t in boxes + rows + [app.message.value])
+
+
+def test_from_a_blank_protocol_every_refusal_is_shown_until_the_plan_is_assessed():
+    """A biologist starting blank fills what the planner asks for, one refusal at a time; each refusal is
+    on show where it belongs (never only in the model), and the plan ends assessed with its margins."""
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    app = PlannerApp(model=PlannerModel(inline=True))
+    m = app.model
+    m.start_blank()
+    asked = []
+    for _ in range(30):
+        if m.current:
+            break
+        (path, message), = m.field_errors.items()
+        m.go(m.step_of_error(path))
+        assert _shown_in(app, message), (path, message)
+        pattern = re.sub(r"\[\d+\]", "[]", path)
+        asked.append(pattern)
+        if pattern == "solution.cryoprotectants[]":  # an agent with no concentration: said on its row
+            path, pattern = path + ".mass_percent", pattern + ".mass_percent"
+        m.set_value(path, BLANK_FILL[pattern])
+    assert m.current and m.report["margin_states"], asked
+    assert asked[:2] == ["title", "sample.volume_ml"]  # the block left out is asked for at its first box

@@ -379,11 +379,20 @@ class PlannerModel(traitlets.HasTraits):
         self.result_revision += 1
 
     def _on_empty_box(self, exc: InputError) -> InputError:
-        """A row refused as a whole because its boxes are all still empty (a row just added) is refused
-        at its first box instead, in the loader's words for a missing value: the person sees the error
-        beside the box to fill, not on the row. Any other error is returned as it is."""
+        """A row refused as a whole because its boxes are all still empty (a row just added), or a whole
+        block left out (a blank protocol's ``sample``), is refused at its first box instead, in the
+        loader's words for a missing value: the person sees the error beside the box to fill. Any other
+        error is returned as it is."""
         import re
 
+        if exc.value == "missing" and re.fullmatch(r"[a-z_]+", exc.field):
+            # a whole block left out (a blank protocol): the error goes to the block's first box on show
+            for s in step_registry.STEPS:
+                for item in s.items:
+                    if (isinstance(item, step_registry.Field) and item.path.startswith(exc.field + ".")
+                            and (item.shown is None or item.shown(self.draft))):
+                        return InputError(item.path, "missing", exc.allowed)
+            return exc
         m = re.fullmatch(r"(.+)\[(\d+)\]", exc.field)
         if m is None:
             return exc
