@@ -842,3 +842,24 @@ def test_from_a_blank_protocol_every_refusal_is_shown_until_the_plan_is_assessed
         m.set_value(path, BLANK_FILL[pattern])
     assert m.current and m.report["margin_states"], asked
     assert asked[:2] == ["title", "sample.volume_ml"]  # the block left out is asked for at its first box
+
+
+@pytest.mark.parametrize("demo, edits", [
+    # both ways of giving the surroundings at once: the loader refuses the block, which has no box of its own
+    ("supercooled-open-vial", [("environment.h_w_per_m2_k", "10")]),
+    ("supercooled-open-vial", [("schedule.steps[1].hold_h", "17520")]),  # two years of schedule in all
+    ("supercooled-open-vial", [("nucleation.calibration", "x.yaml")]),  # a preset and a calibration
+    ("rigid-chamber-hold", [("container.trapped_gas_ml", "25")]),  # more gas than the cavity holds
+    ("rigid-chamber-hold", [("solution.cryoprotectants[0].mass_percent", "95")]),
+])
+def test_every_refusal_is_on_show_on_the_step_it_belongs_to(demo, edits):
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    app = PlannerApp(model=PlannerModel(inline=True))
+    app.model.load_demo(demo)
+    for path, value in edits:
+        app.model.set_value(path, value)
+    (path, message), = app.model.field_errors.items()
+    app.model.go(app.model.step_of_error(path))
+    assert _shown_in(app, message), (path, message)

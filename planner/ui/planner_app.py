@@ -287,6 +287,13 @@ class StepView:
                 parts.append(section_html(name, registry.SECTION_TITLES.get(name, name), report[name]))
         self.numbers.value = "".join(parts)
 
+    def shows(self, message: str) -> bool:
+        """True when a box or row of this step shows ``message`` (as its error, escaped)."""
+        text = html.escape(message)
+        boxes = [fv.error.value for fv in self.fields] + [fv.error.value for rv in self.rows for fv in rv.fields]
+        rows = [err.value for rv in self.rows for _, err in rv.row_errors]
+        return any(text in value for value in boxes + rows)
+
     def refresh_chart(self) -> None:
         """Draw the step's chart on its own worker (the summary strip never waits for a chart)."""
         model = self.app.model
@@ -612,14 +619,19 @@ class PlannerApp:
         self.planning.value = planning_support_html(self.model.report)
         self.download.value = download_link(self.model.download_name(), self.model.protocol_yaml().encode("utf-8"),
                                             "Download protocol (YAML)", "text/yaml")
-        general = self.model.message
-        elsewhere = [(p, m) for p, m in self.model.field_errors.items()
-                     if self.model.step_of_error(p) not in (None, self.model.step)]
-        if elsewhere:
-            p, m = elsewhere[0]
-            step_title = registry.step(self.model.step_of_error(p)).title
-            general = f"On step {step_title}: {m}"
-        self._say(general)
+        self._say(self._general_message())
+
+    def _general_message(self) -> str:
+        """The message line: the model's own message, a refusal that belongs to another step, or a refusal
+        of this step that no box or row of it shows (said here, so a refusal is never only in the model)."""
+        for p, m in self.model.field_errors.items():
+            step = self.model.step_of_error(p)
+            if step not in (None, self.model.step):
+                return f"On step {registry.step(step).title}: {m}"
+            view = self.step_views.get(self.model.step)
+            if step == self.model.step and view is not None and not view.shows(m):
+                return m
+        return self.model.message
 
     def _draw_strip(self) -> None:
         verdict = self.model.verdict()[0] if self.model.report else None
@@ -649,13 +661,7 @@ class PlannerApp:
         self._refresh_message_only()
 
     def _refresh_message_only(self) -> None:
-        general = self.model.message
-        elsewhere = [(p, m) for p, m in self.model.field_errors.items()
-                     if self.model.step_of_error(p) not in (None, self.model.step)]
-        if elsewhere:
-            p, m = elsewhere[0]
-            general = f"On step {registry.step(self.model.step_of_error(p)).title}: {m}"
-        self._say(general)
+        self._say(self._general_message())
 
     def _repr_mimebundle_(self, **kwargs) -> Any:
         return self.widget._repr_mimebundle_(**kwargs)
