@@ -863,3 +863,25 @@ def test_every_refusal_is_on_show_on_the_step_it_belongs_to(demo, edits):
     (path, message), = app.model.field_errors.items()
     app.model.go(app.model.step_of_error(path))
     assert _shown_in(app, message), (path, message)
+
+
+def test_a_number_past_its_range_is_refused_on_show_for_every_number_of_every_demo():
+    """Each number each demo holds, set past its range in the planner, is refused where the person sees
+    it (beside its box, on its row, or in the message line of its step)."""
+    from test_protocol import NUMBER_LEAVES, _joined
+
+    from planner.protocol import bound_for
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    app = PlannerApp(model=PlannerModel(inline=True))
+    hidden = []
+    for demo, path, _ in NUMBER_LEAVES:
+        field = _joined(path)
+        app.model.load_demo(demo.removesuffix(".yaml"))
+        app.model.set_value(field, str(bound_for(field).high * 2 + 1))
+        (where, message), = app.model.field_errors.items()
+        app.model.go(app.model.step_of_error(where))
+        if not _shown_in(app, message):
+            hidden.append((demo, field, message))
+    assert len(NUMBER_LEAVES) > 60 and hidden == []
