@@ -914,3 +914,20 @@ def test_a_word_the_planner_does_not_know_is_refused_on_show_for_every_word_of_e
             if not _shown_in(app, message):
                 hidden.append((demo.stem, _joined(path), message))
     assert n > 40 and hidden == []
+
+
+def test_ticking_cells_with_nothing_given_says_nothing_is_worked_out_yet():
+    from planner.ui.planner_app import PlannerApp
+    from planner.ui.planner_model import PlannerModel
+
+    app = PlannerApp(model=PlannerModel(inline=True))
+    app.model.load_demo(DEMO)  # no cells block
+    app.model.go("cells")
+    view = app.step_views["cells"]
+    assert view.include_note.value == ""
+    view.include.value = True
+    assert "Nothing is given for the cells yet" in view.include_note.value
+    assert "cells" not in app.model.report  # indeed nothing about cells is worked out
+    preset = [f for f in view.fields if f.path == "cells.preset"][0]
+    preset.input.value = "human-sperm"  # a preset of the planner's cell data
+    assert view.include_note.value == "" and "cells" in app.model.report

@@ -16,7 +16,7 @@ import ipywidgets as w
 
 from planner.errors import PlannerError
 from planner.ui import steps as registry
-from planner.ui.draft import format_entry
+from planner.ui.draft import Draft, format_entry
 from planner.ui.fields import css_name, hint_for, label_for
 from planner.ui.planner_model import PROTOCOL_ENV, PlannerModel, demo_files
 from planner.ui.style import style_html
@@ -215,7 +215,8 @@ class StepView:
                                       description=f"Include {spec.title.lower()} in this protocol", indent=False)
             self.include.add_class("cm-include-" + spec.name)
             self.include.observe(self._include, names="value")
-            parts.append(self.include)
+            self.include_note = html_box("", "cm-include-note")
+            parts += [self.include, self.include_note]
         parts.append(self.inputs)
         self.build_inputs()
         self.box = w.VBox([*parts, self.numbers, self.chart])
@@ -276,6 +277,15 @@ class StepView:
 
     def refresh_state(self) -> None:
         self._add_fields_for_errors()
+        if self.spec.optional_path:
+            # ticked but nothing given yet: the block is not in the protocol until a value is (say so)
+            model = self.app.model
+            block = model.draft.get(self.spec.optional_path) if model.draft.has(self.spec.optional_path) else None
+            empty = block is not None and not any(v is not None for _, v in Draft(block).leaves())
+            self.include_note.value = (
+                f"<p class='cm-working-note'>Nothing is given for the {html.escape(self.spec.title.lower())} yet: "
+                "choose a preset or enter values below; until then the protocol has no such block and nothing "
+                "about it is worked out.</p>" if empty and isinstance(block, dict) else "")
         for fv in self.fields:
             fv.refresh_state()
         for rv in self.rows:
