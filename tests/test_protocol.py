@@ -222,16 +222,21 @@ def _joined(path) -> str:
     return out
 
 
-def _number_leaves():
-    """(demo, key path tuple, value) for every number the invented demo protocols hold."""
+def demo_leaves():
+    """(demo file name, key path tuple, value) for every scalar the invented demo protocols hold."""
     for demo in sorted((ROOT / "protocols").glob("*.yaml")):
         doc = yaml.safe_load(demo.read_text())
         for path in _paths(doc):
             node = doc
             for k in path:
                 node = node[k]
-            if path and isinstance(node, (int, float)) and not isinstance(node, bool):
+            if path and not isinstance(node, (dict, list)):
                 yield demo.name, path, node
+
+
+def _number_leaves():
+    """(demo, key path tuple, value) for every number the invented demo protocols hold."""
+    return ((d, p, v) for d, p, v in demo_leaves() if isinstance(v, (int, float)) and not isinstance(v, bool))
 
 
 NUMBER_LEAVES = list(_number_leaves())

@@ -890,30 +890,23 @@ def test_a_number_past_its_range_is_refused_on_show_for_every_number_of_every_de
 def test_a_word_the_planner_does_not_know_is_refused_on_show_for_every_word_of_every_demo():
     """Each choice word each demo holds (agent, carrier, geometry, preset ...), replaced by one the planner
     does not know (as an uploaded file may hold), is refused where the person sees it."""
-    import yaml
-    from test_protocol import _joined, _paths
+    from test_protocol import _joined, demo_leaves
 
     from planner.ui.planner_app import PlannerApp
     from planner.ui.planner_model import PlannerModel
 
+    words = [(d, p) for d, p, v in demo_leaves()
+             if isinstance(v, str) and p[-1] not in ("title", "notes", "description", "schema")]
     app = PlannerApp(model=PlannerModel(inline=True))
-    hidden, n = [], 0
-    for demo in sorted((ROOT / "protocols").glob("*.yaml")):
-        doc = yaml.safe_load(demo.read_text())
-        for path in _paths(doc):
-            node = doc
-            for k in path:
-                node = node[k]
-            if not path or not isinstance(node, str) or path[-1] in ("title", "notes", "description", "schema"):
-                continue
-            n += 1
-            app.model.load_demo(demo.stem)
-            app.model.set_value(_joined(path), "not-a-word")
-            (where, message), = app.model.field_errors.items()
-            app.model.go(app.model.step_of_error(where))
-            if not _shown_in(app, message):
-                hidden.append((demo.stem, _joined(path), message))
-    assert n > 40 and hidden == []
+    hidden = []
+    for demo, path in words:
+        app.model.load_demo(demo.removesuffix(".yaml"))
+        app.model.set_value(_joined(path), "not-a-word")
+        (where, message), = app.model.field_errors.items()
+        app.model.go(app.model.step_of_error(where))
+        if not _shown_in(app, message):
+            hidden.append((demo, _joined(path), message))
+    assert len(words) > 40 and hidden == []
 
 
 def test_ticking_cells_with_nothing_given_says_nothing_is_worked_out_yet():
